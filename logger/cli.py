@@ -1,0 +1,51 @@
+"""The `saglog` command line.
+
+Each command lives in the module that does its work; this file only gathers
+them and turns every user error into one line on stderr with exit status 2.
+"""
+
+from __future__ import annotations
+
+import sys
+
+import click
+
+from . import __version__
+from .errors import UserError
+
+EXIT_USER_ERROR = 2
+
+
+class SaglogGroup(click.Group):
+    """A click group that never shows a traceback for something the user can fix."""
+
+    def main(self, *args, **kwargs):
+        kwargs["standalone_mode"] = False
+        try:
+            rv = super().main(*args, **kwargs)
+        except click.exceptions.Exit as exc:
+            sys.exit(exc.exit_code)
+        except click.exceptions.Abort:
+            click.echo("saglog: aborted", err=True)
+            sys.exit(1)
+        except click.UsageError as exc:
+            cmd = exc.ctx.command_path if exc.ctx else "saglog"
+            click.echo(f"saglog: error: {exc.format_message()} (see '{cmd} --help')", err=True)
+            sys.exit(EXIT_USER_ERROR)
+        except click.ClickException as exc:
+            click.echo(f"saglog: error: {exc.format_message()}", err=True)
+            sys.exit(EXIT_USER_ERROR)
+        except UserError as exc:
+            click.echo(f"saglog: error: {exc}", err=True)
+            sys.exit(EXIT_USER_ERROR)
+        sys.exit(rv if isinstance(rv, int) else 0)
+
+
+@click.group(cls=SaglogGroup, context_settings={"help_option_names": ["-h", "--help"]})
+@click.version_option(__version__, prog_name="saglog")
+def main():
+    """Log a digital indicator on a spherometer and turn seatings into a radius of curvature.
+
+    Lengths on the command line are in the profile's unit; every file a run
+    writes holds millimetres.
+    """

@@ -1,0 +1,20 @@
+"""Error types that the command line turns into one clear line and exit status 2."""
+
+
+class UserError(Exception):
+    """Something the user can fix: a bad profile, option, file or port.
+
+    The message must name what is wrong and where (file, key, option), in one
+    line, because the command line prints it as it is, without a traceback.
+    """
+
+
+class DeviceGone(Exception):
+    """The serial device or network link went away (unplugged, closed, reset).
+
+    Raised by the sources; the capture layer catches it and reconnects.
+    """
+
+
+class DeviceNotFound(UserError):
+    """The port could not be opened at all (missing, busy, no permission)."""
