@@ -49,3 +49,12 @@ def main():
     Lengths on the command line are in the profile's unit; every file a run
     writes holds millimetres.
     """
+
+
+def _register() -> None:
+    from .replay import replay_cmd
+
+    main.add_command(replay_cmd)
+
+
+_register()

@@ -1,0 +1,84 @@
+"""Outlier tests for the seatings of one phase.
+
+Every test returns, for each value, (rejected, score, reason) and never
+deletes anything: the session keeps rejected seatings in its files.
+
+* modified z-score (Iglewicz & Hoaglin 1993): M = 0.6745 (x - median) / MAD,
+  rejected when |M| > 3.5.  The MAD is floored at the indicator step: with
+  quantised readings many seatings show the same count, the MAD becomes zero
+  and every honest seating one count off would otherwise look like an outlier.
+* Grubbs' test, two-sided, repeated one value at a time (NIST/SEMATECH
+  e-Handbook of Statistical Methods, section 1.3.5.17), alpha = 0.05.
+* Chauvenet's criterion: reject when n * P(|Z| >= z) < 1/2.
+For the last two the standard deviation is floored at the step likewise.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from scipy import stats
+
+METHODS = ("modified-z", "grubbs", "chauvenet", "none")
+
+
+def modified_z(values, floor: float, cut: float = 3.5):
+    x = np.asarray(values, float)
+    med = float(np.median(x))
+    mad = max(float(np.median(np.abs(x - med))), floor)
+    scores = 0.6745 * (x - med) / mad
+    return [
+        (bool(abs(m) > cut), float(m), f"outlier: modified z = {m:+.1f} beyond {cut:g}" if abs(m) > cut else "")
+        for m in scores
+    ]
+
+
+def _grubbs_critical(n: int, alpha: float) -> float:
+    t = stats.t.ppf(1 - alpha / (2 * n), n - 2)
+    return (n - 1) / math.sqrt(n) * math.sqrt(t * t / (n - 2 + t * t))
+
+
+def grubbs(values, floor: float, alpha: float = 0.05):
+    x = np.asarray(values, float)
+    out = [(False, 0.0, "")] * len(x)
+    live = list(range(len(x)))
+    while len(live) >= 3:
+        sub = x[live]
+        mean, sd = float(sub.mean()), max(float(sub.std(ddof=1)), floor)
+        dev = np.abs(sub - mean) / sd
+        j = int(np.argmax(dev))
+        g, crit = float(dev[j]), _grubbs_critical(len(live), alpha)
+        if g <= crit:
+            for i, d in zip(live, dev):
+                out[i] = (False, float(d), "")
+            break
+        out[live[j]] = (True, g, f"outlier: Grubbs G = {g:.2f} beyond {crit:.2f}")
+        live.pop(j)
+    return out
+
+
+def chauvenet(values, floor: float):
+    x = np.asarray(values, float)
+    if len(x) < 3:
+        return [(False, 0.0, "")] * len(x)
+    mean, sd = float(x.mean()), max(float(x.std(ddof=1)), floor)
+    z = np.abs(x - mean) / sd
+    expected = len(x) * 2 * stats.norm.sf(z)
+    return [
+        (bool(e < 0.5), float(zi), f"outlier: Chauvenet, {e:.2f} such seatings expected" if e < 0.5 else "")
+        for zi, e in zip(z, expected)
+    ]
+
+
+def judge(values, method: str, floor: float, cut: float = 3.5):
+    """Apply the chosen method; fewer than three values are never judged."""
+    if method not in METHODS:
+        raise ValueError(method)
+    if len(values) < 3 or method == "none":
+        return [(False, 0.0, "")] * len(values)
+    if method == "modified-z":
+        return modified_z(values, floor, cut)
+    if method == "grubbs":
+        return grubbs(values, floor)
+    return chauvenet(values, floor)

@@ -1,0 +1,180 @@
+"""The run folder: the sinks at the end of the pipeline.
+
+* samples.csv  -- every received line, appended and flushed at least once a second;
+* seatings.csv -- every seating with its decision, replaced atomically after each
+                  seating (a later seating may revise earlier decisions);
+* summary.json -- replaced atomically whenever it changes;
+* settings.json -- what the run was analysed with, written once;
+* stream.rec   -- for a capture, the recording of every received line.
+
+Atomic replacement: write a temporary file in the same folder, fsync it,
+rename it over the old one, fsync the folder.  A kill at any moment leaves
+either the old or the new file, never a torn one.  Write failures (disk full,
+read-only folder) become one-line UserErrors; what was written stays.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+import re
+import time
+from pathlib import Path
+
+from .errors import UserError
+from .recording import escape
+
+SAMPLE_COLUMNS = ("time", "t_s", "raw", "value_mm", "state", "seating")
+SEATING_COLUMNS = ("index", "start", "end", "t_start_s", "t_end_s", "phase", "value_mm", "spread_mm", "n",
+                   "accepted", "reason", "zero_mm", "sagitta_mm", "score")
+FLUSH_EVERY_S = 0.5
+
+
+class IsoClock:
+    """ISO 8601 UTC text for epoch seconds, fast: the date and time of day are cached per second."""
+
+    def __init__(self):
+        self._sec = None
+        self._prefix = ""
+
+    def __call__(self, epoch_s: float) -> str:
+        sec = math.floor(epoch_s)
+        if sec != self._sec:
+            self._sec = sec
+            self._prefix = time.strftime("%Y-%m-%dT%H:%M:%S", time.gmtime(sec))
+        micros = min(int((epoch_s - sec) * 1e6 + 0.5), 999999)
+        return f"{self._prefix}.{micros:06d}Z"
+
+
+iso_utc = IsoClock()
+
+
+# A signed reading as text ("-0.123 mm\x0d") is safe in a spreadsheet as it is.
+_PLAIN_NUMBER = re.compile(r'[+-][ \t]*[0-9.,]*[ \t]*(mm|inch|in|")?[ \t]*(\\x0d)?', re.IGNORECASE)
+
+
+def csv_text(value: str) -> str:
+    """A free-text CSV field: quoted, and never a spreadsheet formula.
+
+    Text that a spreadsheet would run as a formula (starting with = + - @,
+    tab or CR) gets a leading apostrophe, the usual guard (the OWASP note on
+    CSV injection, from memory); a plain signed number is left alone.
+    """
+    if value[:1] in ("=", "+", "-", "@", "\t", "\r") and not _PLAIN_NUMBER.fullmatch(value):
+        value = "'" + value
+    return '"' + value.replace('"', '""') + '"'
+
+
+def _num(x, fmt="{:.6f}") -> str:
+    return "" if x is None or (isinstance(x, float) and not math.isfinite(x)) else fmt.format(x)
+
+
+def write_atomic(path: Path, text: str) -> None:
+    tmp = path.with_name(f".{path.name}.tmp")
+    try:
+        with open(tmp, "w", encoding="utf-8", newline="") as f:
+            f.write(text)
+            f.flush()
+            os.fsync(f.fileno())
+        os.replace(tmp, path)
+        dir_fd = os.open(path.parent, os.O_RDONLY)
+        try:
+            os.fsync(dir_fd)
+        finally:
+            os.close(dir_fd)
+    except OSError as exc:
+        raise UserError(f"{path}: cannot write ({exc.strerror or exc}); earlier files in {path.parent} are kept") from None
+
+
+def json_text(obj) -> str:
+    """JSON with no NaN or infinity: those become null."""
+    def clean(x):
+        if isinstance(x, float) and not math.isfinite(x):
+            return None
+        if isinstance(x, dict):
+            return {k: clean(v) for k, v in x.items()}
+        if isinstance(x, (list, tuple)):
+            return [clean(v) for v in x]
+        return x
+    return json.dumps(clean(obj), indent=2, allow_nan=False) + "\n"
+
+
+def prepare_folder(out_dir: str | Path, force: bool = False) -> Path:
+    """Create the run folder; refuse to mix a new run into an old one unless forced."""
+    out = Path(out_dir)
+    if out.exists() and not out.is_dir():
+        raise UserError(f"{out}: exists and is not a folder")
+    if out.is_dir() and (out / "summary.json").exists() and not force:
+        raise UserError(f"{out}: already holds a run (summary.json); choose another --out or pass --force")
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise UserError(f"{out}: cannot create the run folder ({exc.strerror or exc})") from None
+    if not os.access(out, os.W_OK):
+        raise UserError(f"{out}: the run folder is not writable")
+    return out
+
+
+class RunWriter:
+    """Writes one run folder as the pipeline produces it."""
+
+    def __init__(self, out_dir: Path, start_wall: float, settings: dict):
+        self.dir = Path(out_dir)
+        self.start_wall = start_wall
+        write_atomic(self.dir / "settings.json", json_text(settings))
+        self._samples = self._open("samples.csv")
+        self._samples.write(",".join(SAMPLE_COLUMNS) + "\n")
+        self._last_flush = time.monotonic()
+        self._closed = False
+
+    def _open(self, name: str):
+        try:
+            return open(self.dir / name, "w", encoding="utf-8", newline="", buffering=1 << 16)
+        except OSError as exc:
+            raise UserError(f"{self.dir / name}: cannot write ({exc.strerror or exc})") from None
+
+    def sample(self, t_s: float, t_wall: float, raw: bytes, value_mm, state: str, seating) -> None:
+        v = "" if value_mm is None else f"{value_mm:.6f}"
+        s = "" if seating is None else str(seating)
+        try:
+            self._samples.write(f"{iso_utc(t_wall)},{t_s:.6f},{csv_text(escape(raw))},{v},{state},{s}\n")
+        except OSError as exc:
+            raise UserError(f"{self.dir / 'samples.csv'}: cannot write ({exc.strerror or exc})") from None
+
+    def maybe_flush(self) -> None:
+        now = time.monotonic()
+        if now - self._last_flush >= FLUSH_EVERY_S:
+            self.flush()
+            self._last_flush = now
+
+    def flush(self) -> None:
+        try:
+            self._samples.flush()
+        except OSError as exc:
+            raise UserError(f"{self.dir / 'samples.csv'}: cannot write ({exc.strerror or exc})") from None
+
+    def seatings(self, decisions) -> None:
+        rows = [",".join(SEATING_COLUMNS)]
+        for d in decisions:
+            s = d.seating
+            rows.append(",".join((
+                str(s.index), iso_utc(self.start_wall + s.t_start_s), iso_utc(self.start_wall + s.t_end_s),
+                f"{s.t_start_s:.6f}", f"{s.t_end_s:.6f}", d.phase, f"{s.value_mm:.7f}", f"{s.spread_mm:.7f}",
+                str(s.n), "true" if d.accepted else "false", csv_text(d.reason) if d.reason else "",
+                _num(d.zero_mm, "{:.7f}"), _num(d.sagitta_mm, "{:.7f}"), _num(d.score, "{:.3f}"),
+            )))
+        write_atomic(self.dir / "seatings.csv", "\n".join(rows) + "\n")
+
+    def summary(self, summary: dict) -> None:
+        write_atomic(self.dir / "summary.json", json_text(summary))
+
+    def close(self) -> None:
+        if not self._closed:
+            self._closed = True
+            try:
+                self._samples.flush()
+                os.fsync(self._samples.fileno())
+            except OSError:
+                pass  # the error was reported when it happened; what is on disk stays
+            self._samples.close()

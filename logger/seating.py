@@ -1,0 +1,206 @@
+"""Readings -> seatings: notice each placement of the spherometer, hands-free.
+
+A small state machine driven only by the readings' own timestamps, so that it
+works the same live and in replay, on streams that send continuously and on
+streams that send only when the value changes (there, silence means the
+value holds; `advance(t)` tells the detector that time has passed).
+
+* settling: the reading has stayed within `band_mm` of an anchor, but not
+  yet for `settle_s`;
+* seated: it has held for `settle_s`; the seating goes on while the reading
+  stays within `lift_mm` of its running centre.  Noise, vibration and slow
+  creep are smaller than that and do not split a seating; a rocking
+  instrument stays one seating with a large spread (the session rejects it);
+* lifted: the reading jumped by more than `lift_mm` (the spindle running out
+  towards its stop), or it is moving and has not held yet.
+
+The seating's value is a robust, time-weighted centre of its settled samples:
+the first `trim_fraction` of the window (the tail of the settling transient)
+is left out, then samples further than four robust deviations from the
+median.  Time weights make an on-change stream's long-held value count for
+its whole duration.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+LIFTED, SETTLING, SEATED = "lifted", "settling", "seated"
+
+_COMPACT_AT = 20000  # samples kept per seating before pairs are merged (bounded memory)
+
+
+@dataclass(frozen=True)
+class DetectorSettings:
+    settle_s: float = 0.4
+    band_mm: float = 0.004
+    lift_mm: float = 0.05
+    trim_fraction: float = 0.2
+
+    @classmethod
+    def for_step(cls, step_mm: float, **overrides) -> "DetectorSettings":
+        """Defaults scaled to the indicator: band 4 counts (at least 3 um), lift 20 counts (at least 50 um)."""
+        base = dict(band_mm=max(4 * step_mm, 0.003), lift_mm=max(20 * step_mm, 0.05))
+        base.update({k: v for k, v in overrides.items() if v is not None})
+        return cls(**base)
+
+
+@dataclass(frozen=True)
+class Seating:
+    index: int
+    t_start_s: float  # when the reading first held (the instrument came to rest)
+    t_end_s: float  # the last moment it held (the lift began after this)
+    value_mm: float  # robust time-weighted centre of the settled samples
+    spread_mm: float  # time-weighted standard deviation of the settled samples
+    n: int  # samples used
+
+    @property
+    def t_mid_s(self) -> float:
+        return 0.5 * (self.t_start_s + self.t_end_s)
+
+
+class SeatingDetector:
+    """Feed readings (t_s, value_mm) in time order; collect finished Seatings.
+
+    `sign` is +1 when the reading grows as the spindle is pushed in.  A held
+    level counts as a seating only when the spindle came to it from further
+    out by at least `lift_mm` (it was pushed in by placing the instrument);
+    the spindle resting at its stop while the instrument is lifted is held
+    too, but was reached by running out, so it is not a seating.  For the
+    same reason a stream that starts with the instrument already seated does
+    not count that first placement.
+    """
+
+    def __init__(self, settings: DetectorSettings, sign: int = 1):
+        self.s = settings
+        self.sign = 1 if sign >= 0 else -1
+        self.state = LIFTED
+        self.count = 0
+        self._t: list[float] = []  # samples since the anchor
+        self._v: list[float] = []
+        self._centre = math.nan
+        self._last_t = -math.inf
+        self._resting = False  # holding still at the spindle's stop
+        self._most_out = math.inf  # most-out oriented reading since the last seating ended
+        self.current_index: int | None = None  # index of the seating in progress, once seated
+
+    # -- feeding --------------------------------------------------------
+    def advance(self, t_s: float) -> None:
+        """Time has passed with no new reading: a held value may now count as seated."""
+        if self.state != SEATED and not self._resting and self._t and t_s - self._t[0] >= self.s.settle_s:
+            self._hold_reached()
+
+    def feed(self, t_s: float, value_mm: float) -> Seating | None:
+        """One reading; returns a Seating when this reading ended one."""
+        self.advance(t_s)
+        self._last_t = t_s
+        if self.state == SEATED:
+            if abs(value_mm - self._centre) <= self.s.lift_mm:
+                self._append(t_s, value_mm)
+                # running centre: slow enough to ignore noise, quick enough for creep
+                self._centre += (value_mm - self._centre) * 0.05
+                return None
+            finished = self._finish(t_s)  # the held value lasted until this reading
+            self._most_out = self.sign * value_mm
+            self._restart(t_s, value_mm)
+            return finished
+        self._most_out = min(self._most_out, self.sign * value_mm)
+        if self._t and abs(value_mm - self._v[0]) <= self.s.band_mm:
+            if not self._resting:
+                self._append(t_s, value_mm)
+                self.state = SETTLING
+                if t_s - self._t[0] >= self.s.settle_s:
+                    self._hold_reached()
+        else:
+            self._restart(t_s, value_mm)
+        return None
+
+    def end(self, t_s: float | None = None) -> Seating | None:
+        """End of stream or a gap in it: close a seating in progress."""
+        if t_s is not None:
+            self.advance(t_s)
+        done = self._finish(t_s if t_s is not None else self._last_t) if self.state == SEATED else None
+        self.state = LIFTED
+        self._t, self._v = [], []
+        self._resting = False
+        self._most_out = math.inf
+        self.current_index = None
+        return done
+
+    # -- internals ------------------------------------------------------
+    def _restart(self, t_s: float, value_mm: float) -> None:
+        """A reading that moved: it becomes the anchor a new seating may grow from."""
+        self._t, self._v = [t_s], [value_mm]
+        self.state = LIFTED
+        self._resting = False
+        self.current_index = None
+
+    def _append(self, t_s: float, value_mm: float) -> None:
+        self._t.append(t_s)
+        self._v.append(value_mm)
+        if len(self._t) > _COMPACT_AT:
+            self._compact()
+
+    def _compact(self) -> None:
+        """Merge neighbouring samples pairwise (mean of pairs): memory stays bounded for very long holds."""
+        t, v = self._t, self._v
+        rest_t, rest_v = np.asarray(t[1:]), np.asarray(v[1:])
+        m = len(rest_t) // 2 * 2
+        self._t = t[:1] + rest_t[:m:2].tolist() + rest_t[m:].tolist()
+        self._v = v[:1] + ((rest_v[:m:2] + rest_v[1:m:2]) / 2).tolist() + rest_v[m:].tolist()
+
+    def _hold_reached(self) -> None:
+        held = float(np.mean(self._v))
+        if self.sign * held - self._most_out < self.s.lift_mm:
+            # reached by running out (or nothing seen before it): the spindle at its stop
+            self._resting = True
+            self.state = LIFTED
+            self._t, self._v = self._t[:1], self._v[:1]
+            return
+        self.state = SEATED
+        self.current_index = self.count
+        self._centre = held
+
+    def _finish(self, t_end_s: float) -> Seating:
+        t = np.asarray(self._t)
+        v = np.asarray(self._v)
+        t_end = max(t_end_s, t[-1]) if math.isfinite(t_end_s) else t[-1]
+        # time weights: each value holds until the next one (the last until the end)
+        w = np.diff(np.append(t, t_end))
+        if not np.any(w > 0):
+            w = np.ones_like(v)
+        keep = t >= t[0] + self.s.trim_fraction * (t_end - t[0])
+        keep[-1] = True
+        value, spread, n = robust_centre(v[keep], w[keep])
+        seating = Seating(self.count, float(t[0]), float(t_end), value, spread, n)
+        self.count += 1
+        self.current_index = None
+        return seating
+
+
+def robust_centre(values, weights) -> tuple[float, float, int]:
+    """Time-weighted mean and standard deviation after dropping far samples.
+
+    Far = more than 4 scaled MADs (1.4826 MAD estimates sigma for normal data)
+    from the median; with quantised, identical samples the MAD is zero and
+    only samples that differ from the median at all are dropped, so the floor
+    of one tiny epsilon keeps the centre well defined.
+    """
+    v = np.asarray(values, float)
+    w = np.asarray(weights, float)
+    if w.sum() <= 0:
+        w = np.ones_like(v)
+    med = float(np.median(v))
+    mad = float(np.median(np.abs(v - med))) * 1.4826
+    if mad > 0:
+        sel = np.abs(v - med) <= 4 * mad
+        if sel.sum() >= max(1, len(v) // 2):
+            v, w = v[sel], w[sel]
+    if w.sum() <= 0:
+        w = np.ones_like(v)
+    mean = float(np.average(v, weights=w))
+    spread = float(math.sqrt(max(np.average((v - mean) ** 2, weights=w), 0.0)))
+    return mean, spread, int(len(v))
