@@ -49,3 +49,10 @@ def main():
     Lengths on the command line are in the profile's unit; every file a run
     writes holds millimetres.
     """
+
+
+from .calc import new_profile, plan, radius  # noqa: E402  (the commands register themselves below)
+
+main.add_command(radius)
+main.add_command(plan)
+main.add_command(new_profile)

@@ -68,6 +68,34 @@ class Component:
         return abs(self.sensitivity) * self.u
 
 
+def resolution_component(name: str, resolution_mm: float) -> Component:
+    """One reading's quantisation: rectangular of full width q, u = q / sqrt(12) (GUM F.2.2.1)."""
+    return Component(name, resolution_mm / math.sqrt(12.0), distribution="rectangular")
+
+
+def scatter_component(scatter_mm: float, n: int, name: str = "seating scatter") -> Component:
+    """Type A: the standard uncertainty of a mean of n seatings, s / sqrt(n), with n - 1 dof (GUM 4.2.3, G.3.3)."""
+    if n < 2:
+        raise UserError(f"a scatter needs at least 2 seatings, got {n}")
+    return Component(name, scatter_mm / math.sqrt(n), dof=n - 1, kind="A", distribution="t")
+
+
+def reading_components(resolution_mm: float, scatter_mm: float | None = None, n: int | None = None) -> list[Component]:
+    """The sagitta's own terms: the seating scatter of a mean of n (when known) and the indicator's step.
+
+    The sagitta is a surface reading minus a zero reading, each quantised.
+    Averaging beats the step only when the seatings scatter by at least
+    about one count; then the scatter already holds the quantisation and
+    the resolution terms are left out.  Below one count (or with no
+    scatter known) the two resolution terms stay.
+    """
+    comps = [] if scatter_mm is None else [scatter_component(scatter_mm, n)]
+    if scatter_mm is None or scatter_mm < resolution_mm:
+        comps += [resolution_component("resolution, surface reading", resolution_mm),
+                  resolution_component("resolution, zero reading", resolution_mm)]
+    return comps
+
+
 def coverage_factor(p: float, dof: float) -> float:
     """k such that +-k u_c covers p: Student t at dof, the normal quantile at infinity (GUM G.3.4)."""
     if not 0 < p < 1:
