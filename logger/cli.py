@@ -6,6 +6,7 @@ them and turns every user error into one line on stderr with exit status 2.
 
 from __future__ import annotations
 
+import importlib
 import sys
 
 import click
@@ -16,8 +17,28 @@ from .errors import UserError
 EXIT_USER_ERROR = 2
 
 
+# Commands are imported only when used, so `saglog --help` and the quick
+# commands start fast (the plotting and statistics libraries are heavy).
+COMMANDS = {
+    "radius": "logger.calc:radius",
+    "plan": "logger.calc:plan",
+    "new-profile": "logger.calc:new_profile",
+    "replay": "logger.replay:replay_cmd",
+    "capture": "logger.capture:capture_cmd",
+}
+
+
 class SaglogGroup(click.Group):
     """A click group that never shows a traceback for something the user can fix."""
+
+    def list_commands(self, ctx):
+        return sorted(set(COMMANDS) | set(self.commands))
+
+    def get_command(self, ctx, name):
+        if name in COMMANDS and name not in self.commands:
+            module, attr = COMMANDS[name].split(":")
+            self.add_command(getattr(importlib.import_module(module), attr), name)
+        return self.commands.get(name)
 
     def main(self, *args, **kwargs):
         kwargs["standalone_mode"] = False
@@ -49,12 +70,3 @@ def main():
     Lengths on the command line are in the profile's unit; every file a run
     writes holds millimetres.
     """
-
-
-def _register() -> None:
-    from .replay import replay_cmd
-
-    main.add_command(replay_cmd)
-
-
-_register()

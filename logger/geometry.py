@@ -22,6 +22,8 @@ from __future__ import annotations
 
 import math
 
+import numpy as np
+
 from .errors import UserError
 
 SURFACES = ("concave", "convex")
@@ -32,27 +34,34 @@ def _check_surface(surface: str) -> None:
         raise UserError(f"surface must be 'concave' or 'convex', not {surface!r}")
 
 
-def circumradius_mm(a: float, b: float, c: float) -> float:
+def circumradius_mm(a, b, c):
     """Radius of the circle through three points with side lengths a, b, c.
 
     r = abc / (4K) with the triangle's area K from Heron's formula, in the
     form that stays accurate for needle-shaped triangles (W. Kahan, 'Miscalculating
     Area and Angles of a Needle-like Triangle', 2014; from memory).
+    Takes floats or numpy arrays (the Monte Carlo check feeds it samples);
+    floats in give a float out.
     """
-    sides = sorted((float(a), float(b), float(c)), reverse=True)
-    if not all(math.isfinite(x) for x in sides) or sides[2] <= 0:
+    sides = np.sort(np.stack(np.broadcast_arrays(*(np.asarray(v, dtype=float) for v in (a, b, c)))), axis=0)[::-1]
+    if not np.all(np.isfinite(sides)) or np.any(sides[2] <= 0):
         raise UserError(f"leg spacings must be positive numbers, got {a}, {b}, {c}")
     x, y, z = sides  # x >= y >= z
-    if z - (x - y) <= 0:
+    if np.any(z - (x - y) <= 0):
         raise UserError(
             f"leg spacings {a}, {b}, {c} do not form a triangle "
             "(the longest is not shorter than the other two together)"
         )
-    area4 = math.sqrt((x + (y + z)) * (z - (x - y)) * (z + (x - y)) * (x + (y - z)))
+    area4 = np.sqrt((x + (y + z)) * (z - (x - y)) * (z + (x - y)) * (x + (y - z)))
     # area4 is 4K.  Reject triangles so flat that the ring radius is meaningless.
-    if area4 <= 1e-9 * x * x:
+    if np.any(area4 <= 1e-9 * x * x):
         raise UserError(f"leg spacings {a}, {b}, {c} make a degenerate (flat) triangle")
-    return x * y * z / area4
+    return _out(x * y * z / area4)
+
+
+def _out(value):
+    """A 0-d result as a plain float, an array as it is."""
+    return float(value) if np.ndim(value) == 0 else value
 
 
 def sagitta_of_sphere_mm(radius_mm: float, ring_radius_mm: float) -> float:
@@ -81,23 +90,35 @@ def probe_sagitta_mm(radius_mm: float, ring_radius_mm: float, foot_radius_mm: fl
     return sagitta_of_sphere_mm(ball_sphere, ring_radius_mm)
 
 
-def radius_from_sagitta_mm(sagitta_mm: float, ring_radius_mm: float, foot_radius_mm: float, surface: str) -> float:
-    """Radius of curvature from the probe's sagitta (exact; s^2 term and feet kept)."""
+def radius_from_sagitta_mm(sagitta_mm, ring_radius_mm, foot_radius_mm, surface: str):
+    """Radius of curvature from the probe's sagitta (exact; s^2 term and feet kept).
+
+    Floats or numpy arrays of samples (for the Monte Carlo check).
+    """
     _check_surface(surface)
-    s, r, rho = float(sagitta_mm), float(ring_radius_mm), float(foot_radius_mm)
-    if not (math.isfinite(s) and s > 0):
-        raise UserError(f"sagitta must be a positive number, got {sagitta_mm!r}")
-    if r <= 0:
-        raise UserError(f"ring radius must be positive, got {ring_radius_mm!r}")
-    if s >= r:
+    s, r, rho = (np.asarray(v, dtype=float) for v in (sagitta_mm, ring_radius_mm, foot_radius_mm))
+    if not np.all(np.isfinite(s) & (s > 0)):
+        raise UserError(f"sagitta must be a positive number, got {_show(sagitta_mm)}")
+    if not np.all(r > 0):
+        raise UserError(f"ring radius must be positive, got {_show(ring_radius_mm)}")
+    if np.any(s >= r):
         raise UserError(
-            f"sagitta {s:g} mm is at or beyond the ring radius {r:g} mm: no sphere gives that reading"
+            f"sagitta {_show(sagitta_mm)} mm is at or beyond the ring radius {_show(ring_radius_mm)} mm: "
+            "no sphere gives that reading"
         )
     ball_sphere = (r * r + s * s) / (2.0 * s)
     R = ball_sphere + rho if surface == "concave" else ball_sphere - rho
-    if R <= 0:
-        raise UserError(f"sagitta {s:g} mm on a convex surface implies a radius no larger than the foot radius")
-    return R
+    if np.any(R <= 0):
+        raise UserError(
+            f"sagitta {_show(sagitta_mm)} mm on a convex surface implies a radius no larger than the foot radius"
+        )
+    return _out(R)
+
+
+def _show(value) -> str:
+    """A number for a message; for an array of samples, its range."""
+    v = np.asarray(value, dtype=float)
+    return f"{float(v):g}" if v.ndim == 0 else f"{v.min():g}..{v.max():g} (samples)"
 
 
 def dradius_dsagitta(sagitta_mm: float, ring_radius_mm: float) -> float:

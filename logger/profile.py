@@ -171,11 +171,13 @@ def parse_profile(data: dict, source: str = "profile") -> Profile:
         params["ball_diameter"] = L("ball_diameter", allow_zero=True) if "ball_diameter" in sph else 0.0
         u.update(ring_radius=u_of["ring_radius"], ball_diameter=u_of["ball_diameter"])
     spherometer = Spherometer(kind, params, u)
-    spherometer.contact_mm("concave")  # raises a UserError for an impossible triangle
     if kind == "three-ball":
-        r = geometry.circumradius_mm(params["a"], params["b"], params["c"])
-        if params["ball_diameter"] / 2 >= r:
-            raise UserError(f"{source}: [spherometer] ball_diameter is too large for the leg spacings")
+        try:
+            r = geometry.circumradius_mm(params["a"], params["b"], params["c"])
+        except UserError as exc:  # name the file and key, not just the numbers
+            raise UserError(f"{source}: [spherometer] leg_spacings: {exc}") from None
+        if params["ball_diameter"] / 2 >= r or params["ball_diameter"] > min(params["a"], params["b"], params["c"]):
+            raise UserError(f"{source}: [spherometer] ball_diameter is too large for the leg spacings (the balls would overlap)")
 
     ind = data["indicator"]
     if not isinstance(ind, dict):
