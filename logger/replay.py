@@ -25,8 +25,22 @@ def replay_file(path: str | Path, profile: Profile, settings: RunSettings, out_d
     path = Path(path)
     if not path.is_file():
         raise UserError(f"{path}: recording not found")
+    end_s = None
+
+    def on_comment(text: str) -> None:
+        # capture events kept in the recording, so the replay sees the run as the capture did
+        nonlocal end_s
+        word, *args = text.split() or [""]
+        try:
+            if word == "gap" and len(args) == 2:
+                pipeline.gap(float(args[0]), float(args[1]))
+            elif word == "end" and len(args) == 1:
+                end_s = float(args[0])
+        except ValueError:
+            raise UserError(f"{path}: bad '# {text}' line") from None
+
     if is_recording(path):
-        header, records = read_recording(path)
+        header, records = read_recording(path, on_comment)
         start_wall = header.get("start_wall", 0.0)
         source = {"recording": str(path), **{k: v for k, v in header.items() if k != "start_wall"}}
     elif rate_hz is None:
@@ -43,7 +57,7 @@ def replay_file(path: str | Path, profile: Profile, settings: RunSettings, out_d
         for t_s, raw in records:
             pipeline.line(t_s, raw)
     finally:
-        pipeline.finish()
+        pipeline.finish(end_s)
     return pipeline.summary
 
 

@@ -153,6 +153,16 @@ def _zero_u_at(z: _Zero, times, t_s: float) -> float | None:
 
 
 def analyse(seatings: list[Seating], profile: Profile, settings: AnalysisSettings) -> SessionResult:
+    """Decide every seating and compute the result; the counts are taken after every decision."""
+    result = _analyse(seatings, profile, settings)
+    acc = [d for d in result.decisions if d.accepted]
+    result.summary.update(
+        seatings_flat=sum(d.phase == FLAT for d in acc), seatings_surface=sum(d.phase == SURFACE for d in acc),
+        seatings_rejected=len(result.decisions) - len(acc), seatings_total=len(result.decisions))
+    return result
+
+
+def _analyse(seatings: list[Seating], profile: Profile, settings: AnalysisSettings) -> SessionResult:
     step = profile.indicator.resolution_mm
     sign = profile.indicator.sign
     decisions = [Decision(s) for s in seatings]
@@ -192,7 +202,7 @@ def analyse(seatings: list[Seating], profile: Profile, settings: AnalysisSetting
         _apply(steady_flats, outliers.judge(resid, settings.rejection, step, settings.z_cut))
 
     good_flats = [d for d in flats if d.accepted]
-    summary = _base_summary(profile, settings, decisions)
+    summary = _base_summary(profile, settings)
     if not good_flats:
         summary.update(status="no flat seatings", message=(
             "No seating on the flat was found: seat the spherometer on the reference flat first."
@@ -298,9 +308,8 @@ def _targets(summary, settings, profile, surface, radius, s_mean) -> None:
         summary.update(target_radius_mm=tr, radius_to_go_mm=radius - tr, sagitta_to_go_mm=target_s - s_mean)
 
 
-def _base_summary(profile: Profile, settings: AnalysisSettings, decisions: list[Decision]) -> dict:
+def _base_summary(profile: Profile, settings: AnalysisSettings) -> dict:
     """Every key present from the first moment, null where not yet known (never NaN)."""
-    acc = [d for d in decisions if d.accepted]
     keys = ("surface zero_mm zero_u_mm zero_t_ref_s drift_mm_per_min drift_model sagitta_mm sagitta_u_mm "
             "radius_mm radius_u_mm radius_U_mm coverage_factor dof_eff focal_length_mm focal_length_U_mm "
             "diameter_mm focal_ratio target_radius_mm radius_to_go_mm sagitta_to_go_mm").split()
@@ -309,8 +318,6 @@ def _base_summary(profile: Profile, settings: AnalysisSettings, decisions: list[
     r_cv, _ = profile.contact_mm("convex")
     out.update(
         status="", message="", label=settings.label, unit=profile.unit,
-        seatings_flat=sum(d.phase == FLAT for d in acc), seatings_surface=sum(d.phase == SURFACE for d in acc),
-        seatings_rejected=sum(not d.accepted for d in decisions), seatings_total=len(decisions),
         same_count=False, rejection=settings.rejection, budget=[],
         spherometer=dict(kind=profile.spherometer.kind, params_mm=dict(profile.spherometer.params_mm),
                          u_mm=dict(profile.spherometer.u_mm), name=profile.name),
