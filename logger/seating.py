@@ -90,8 +90,13 @@ class SeatingDetector:
     # -- feeding --------------------------------------------------------
     def advance(self, t_s: float) -> None:
         """Time has passed with no new reading: a held value may now count as seated."""
-        if self.state != SEATED and not self._resting and self._t and t_s - self._t[0] >= self.s.settle_s:
+        if self.state == SEATED or self._resting or not self._t:
+            return
+        held_s = t_s - self._t[0]
+        if held_s >= self.s.settle_s:
             self._hold_reached()
+        elif held_s >= 0.25 * self.s.settle_s and t_s - self._t[-1] >= 0.25 * self.s.settle_s:
+            self.state = SETTLING  # an on-change stream gone quiet: the value is holding
 
     def feed(self, t_s: float, value_mm: float) -> Seating | None:
         """One reading; returns a Seating when this reading ended one."""
