@@ -54,7 +54,7 @@ def circumradius_mm(a, b, c):
         )
     area4 = np.sqrt((x + (y + z)) * (z - (x - y)) * (z + (x - y)) * (x + (y - z)))
     # area4 is 4K.  Reject triangles so flat that the ring radius is meaningless.
-    if np.any(area4 <= 1e-9 * x * x):
+    if np.any(area4 <= 1e-6 * x * x):  # height under 5e-7 of the longest side
         raise UserError(f"leg spacings {a}, {b}, {c} make a degenerate (flat) triangle")
     return _out(x * y * z / area4)
 
