@@ -36,9 +36,6 @@ class AnalysisSettings:
     diameter_mm: float | None = None
     label: str = ""
 
-    def gap_mm(self, step_mm: float) -> float:
-        return self.phase_gap_mm if self.phase_gap_mm is not None else max(10 * step_mm, 0.01)
-
 
 @dataclass
 class Decision:
@@ -73,13 +70,19 @@ class _Zero:
         return self.value_mm + self.slope_mm_per_s * (t_s - self.t_ref_s)
 
 
-def classify(seatings: list[Seating], gap_mm: float, flat_first: int | None) -> list[str]:
+def default_gap_mm(step_mm: float) -> float:
+    return max(10 * step_mm, 0.01)
+
+
+def classify(seatings: list[Seating], gap_mm: float | None, flat_first: int | None, step_mm: float) -> list[str]:
     """Phase of each seating: the flat (zero and zero checks) or the surface.
 
     The zero is the median of the opening seatings (those within `gap_mm` of
     the running median from the start, or the first `flat_first`).  Seatings
     further than `gap_mm` from it are surface candidates; their median is the
-    surface level and every seating goes to the nearer of the two levels.  A
+    surface level and every seating goes to the nearer of the two levels.
+    With `flat_first` and no explicit gap, the gap shrinks to what the
+    opening flats' scatter allows (very shallow curves).  A
     single far seating that is not the newest is grit on the flat, not a
     surface phase, so it stays with the flat (and is rejected there).
     """
@@ -90,10 +93,15 @@ def classify(seatings: list[Seating], gap_mm: float, flat_first: int | None) -> 
         opening = v[: min(flat_first, len(v))]
     else:
         k = 1
-        while k < len(v) and abs(v[k] - np.median(v[:k])) <= gap_mm:
+        while k < len(v) and abs(v[k] - np.median(v[:k])) <= (gap_mm or default_gap_mm(step_mm)):
             k += 1
         opening = v[:k]
     zero = float(np.median(opening))
+    if flat_first and len(opening) >= 2 and gap_mm is None:
+        # told where the flat ends: the surface need only stand clear of the flat's own scatter
+        gap_mm = max(3 * step_mm, 5 * 1.4826 * float(np.median(np.abs(opening - zero))))
+    elif gap_mm is None:
+        gap_mm = default_gap_mm(step_mm)
     first_surface = flat_first if flat_first else len(opening)
     far = [i for i in range(first_surface, len(v)) if abs(v[i] - zero) > gap_mm]
     if not far or (len(far) == 1 and far[0] != len(v) - 1):
@@ -166,7 +174,7 @@ def _analyse(seatings: list[Seating], profile: Profile, settings: AnalysisSettin
     step = profile.indicator.resolution_mm
     sign = profile.indicator.sign
     decisions = [Decision(s) for s in seatings]
-    phases = classify(seatings, settings.gap_mm(step), settings.flat_first)
+    phases = classify(seatings, settings.phase_gap_mm, settings.flat_first, step)
     for d, ph in zip(decisions, phases):
         d.phase = ph
 
