@@ -12,6 +12,7 @@ from __future__ import annotations
 import re
 from dataclasses import dataclass
 
+from .frames import decode_frame_line
 from .units import MM_PER_INCH
 
 MAX_LINE = 256  # bytes; no indicator line is anywhere near this long
@@ -141,6 +142,11 @@ class Decoder:
     def decode(self, raw: bytes, t_s: float, t_wall: float) -> Reading:
         m = _READING.match(raw) if len(raw) < self.max_line else None
         if m is None:
+            frame = decode_frame_line(raw) if raw[:2] == b"F:" else None
+            if frame is not None:  # the bridge's raw-frame mode (logger.frames)
+                self.good += 1
+                value, unit_name = frame
+                return Reading(t_s, t_wall, raw, value * MM_PER_INCH if unit_name == "in" else value, unit_name)
             self.bad += 1
             return Reading(t_s, t_wall, raw, None, None, _why_bad(raw, self.max_line))
         sign, digits, unit = m.groups()
