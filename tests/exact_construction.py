@@ -53,9 +53,9 @@ def three_ball_reading(a: float, b: float, c: float, foot_radius: float, R: floa
     assert np.allclose(dist, Rb, rtol=1e-12, atol=0), "construction: a ball does not touch the sphere"
     if surface == "concave":
         tip_z = C[2] - R  # the bowl's bottom, straight below the centre on the axis
-        return -foot_radius - tip_z  # spindle runs out
+        return float(-foot_radius - tip_z)  # spindle runs out
     tip_z = C[2] + R  # the dome's top
-    return tip_z + foot_radius  # spindle pushed in
+    return float(tip_z + foot_radius)  # spindle pushed in
 
 
 def _arc_lift(surface_z, centre_rho: float, e: float, outward: bool) -> float:
