@@ -52,7 +52,7 @@ class RunSettings:
 
 class Pipeline:
     def __init__(self, profile: Profile, settings: RunSettings, writer: RunWriter | None,
-                 start_wall: float, listener: Listener | None = None):
+                 start_wall: float, listener: Listener | None = None, live: bool = True):
         self.profile = profile
         self.settings = settings
         self.writer = writer
@@ -65,6 +65,10 @@ class Pipeline:
         self.last_t_s = 0.0
         self.result: SessionResult = analyse([], profile, settings.analysis)
         self._state = self.detector.state
+        # Live, every seating is analysed and published at once.  A replay has
+        # nobody watching: it analyses once at the end, which gives the same
+        # result (the analysis depends only on the list of seatings).
+        self.live = live
 
     # -- feeding --------------------------------------------------------
     def line(self, t_s: float, raw: bytes, t_wall: float | None = None) -> Reading:
@@ -97,7 +101,7 @@ class Pipeline:
         self.gaps.append({"t_start_s": t_start_s, "t_end_s": t_end_s})
         if done is not None:
             self._seating(done)
-        else:
+        elif self.live:
             self._publish()
 
     def finish(self, t_end_s: float | None = None) -> dict:
@@ -106,9 +110,11 @@ class Pipeline:
         self.last_t_s = t_end
         done = self.detector.end(t_end)
         if done is not None:
-            self._seating(done)
-        else:
-            self._publish()
+            self.seatings.append(done)
+        self.result = analyse(self.seatings, self.profile, self.settings.analysis)
+        self._publish()
+        if done is not None:
+            self.listener.seating(done, self.result)
         if self.writer is not None:
             self.writer.close()
         return self.summary
@@ -130,6 +136,8 @@ class Pipeline:
 
     def _seating(self, seating: Seating) -> None:
         self.seatings.append(seating)
+        if not self.live:
+            return
         self.result = analyse(self.seatings, self.profile, self.settings.analysis)
         self._publish()
         self.listener.seating(seating, self.result)

@@ -52,7 +52,8 @@ def replay_file(path: str | Path, profile: Profile, settings: RunSettings, out_d
         source = {"plain_capture": str(path), "rate_hz": rate_hz}
     settings.source = source
     out = prepare_folder(out_dir, force)
-    pipeline = Pipeline(profile, settings, RunWriter(out, start_wall, settings.as_dict(profile)), start_wall, listener)
+    pipeline = Pipeline(profile, settings, RunWriter(out, start_wall, settings.as_dict(profile)), start_wall, listener,
+                        live=False)
     try:
         for t_s, raw in records:
             pipeline.line(t_s, raw)
