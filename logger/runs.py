@@ -7,6 +7,8 @@ typed tables: times as UTC datetimes, `accepted` as bool, numbers as floats
 with NaN where the file has an empty cell.  The column documentation lives
 here once (`SEATINGS_COLUMNS`, `SAMPLES_COLUMNS`); docs/notes-reports.md
 holds `columns_markdown()` verbatim and a test keeps the two identical.
+Text cells may carry a leading apostrophe that keeps spreadsheets from
+running them as formulas; the loader removes it.
 
 The CSV tables are parsed on first use, so `load_runs` over many large runs
 (the history plot needs only the summaries) stays quick.
@@ -75,7 +77,11 @@ def columns_markdown() -> str:
         out += [f"`{fname}` columns, in this order:", "", "| column | loaded as | meaning |", "|---|---|---|"]
         out += [f"| `{c.name}` | {c.kind} | {c.doc} |" for c in cols]
         out.append("")
-    return "\n".join(out)
+    out.append(
+        "Text cells that a spreadsheet would run as a formula (starting with `=`, `+`, `-`, `@`) are "
+        "written with a leading apostrophe; `load_run` removes it."
+    )
+    return "\n".join(out) + "\n"
 
 
 def _read_json(path: Path) -> dict:
@@ -118,10 +124,18 @@ def _read_table(path: Path, columns: tuple[Column, ...]) -> pd.DataFrame:
             elif c.kind == "bool":
                 df[c.name] = _parse_bool(col)
             elif c.kind == "text":
-                df[c.name] = col.fillna("")
+                col = col.fillna("")
+                if col.str.startswith("'").any():
+                    col = col.str.replace(_FORMULA_GUARD, "", n=1, regex=True)
+                df[c.name] = col
         except (ValueError, TypeError) as exc:
             raise UserError(f"{path}: column {c.name}: {' '.join(str(exc).split())}") from None
     return df
+
+
+# The writer puts an apostrophe before text a spreadsheet would run as a formula
+# (a cell starting with = + - @, tab or CR); the loaded table holds the text itself.
+_FORMULA_GUARD = r"^'(?=[=+\-@\t\r])"
 
 
 def _parse_bool(col: pd.Series) -> pd.Series:
