@@ -89,8 +89,11 @@ def header_lines(run: Run, unit: str) -> list[str]:
     r_line += f"   focal length f = {fmt_pm(s.get('focal_length_mm'), s.get('focal_length_U_mm'), unit)}"
     if _finite(s.get("focal_ratio")):
         r_line += f"   f/{s['focal_ratio']:.2f}"
+    target = ""
     if _finite(s.get("target_radius_mm")):
-        r_line += f"   target R {fmt_len(s['target_radius_mm'], unit)}, to go {fmt_len(s.get('radius_to_go_mm'), unit, 4)}"
+        target = f"target R {fmt_len(s['target_radius_mm'], unit)}, R still to go {fmt_len(s.get('radius_to_go_mm'), unit, 4)}"
+        if _finite(s.get("sagitta_to_go_mm")):
+            target += f", sagitta still to go {fmt_len(s['sagitta_to_go_mm'], unit, 4)}"
     drift = _num(s, "drift_mm_per_min")
     z_line = (
         f"sagitta s = {fmt_pm(s.get('sagitta_mm'), s.get('sagitta_u_mm'), unit)} (standard u)"
@@ -114,6 +117,7 @@ def header_lines(run: Run, unit: str) -> list[str]:
     return [
         f"{run.label or 'run'}: {s.get('status') or 'status unknown'}. {s.get('message') or ''}".strip(),
         r_line,
+        *([target] if target else []),
         z_line,
         counts,
         f"spherometer: {_spherometer_text(s, unit)}",
@@ -170,7 +174,7 @@ def make_report_figure(run: Run, unit: str | None = None):
     k = from_mm(1.0, unit)  # mm -> display unit (linear)
     s, sm, st = run.summary, run.samples, run.seatings
     fig = ps.new_figure(13, 9.5)
-    grid = fig.add_gridspec(3, 2, height_ratios=[0.42, 1.35, 1.0])
+    grid = fig.add_gridspec(3, 2, height_ratios=[0.5, 1.35, 1.0])
     head = fig.add_subplot(grid[0, :], gid="header")
     trace = fig.add_subplot(grid[1, :], gid="trace")
     flats = fig.add_subplot(grid[2, 0], gid="zero")
