@@ -53,3 +53,5 @@ def main():
 
 from .report import report_command  # noqa: E402
 main.add_command(report_command)
+from .history import history_command  # noqa: E402
+main.add_command(history_command)
