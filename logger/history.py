@@ -50,19 +50,19 @@ def run_kind(label: str, surface: str) -> str:
 
 
 def history_table(runs, target_radius_mm: float | None = None) -> pd.DataFrame:
-    """One row per run in time order: start, label, kind, radius ± U (mm), the target and what is left."""
+    """One row per run in time order: start, label, kind, radius ± U (mm), the target and what is left.
+
+    The target is the one given, else the latest run's summary target (the same for every row);
+    radius_to_go_mm = target - radius.
+    """
     t = runs_table(runs)
     t["kind"] = [run_kind(lab, sur) for lab, sur in zip(t["label"], t["surface"])]
-    if target_radius_mm is not None:
-        t["target_radius_mm"] = float(target_radius_mm)
+    if target_radius_mm is None:
+        known = t["target_radius_mm"].dropna()
+        target_radius_mm = float(known.iloc[-1]) if len(known) else math.nan
+    t["target_radius_mm"] = float(target_radius_mm)
     t["radius_to_go_mm"] = t["target_radius_mm"] - t["radius_mm"]
     return t[list(HISTORY_COLUMNS)].reset_index(drop=True)
-
-
-def pick_target_mm(table: pd.DataFrame) -> float | None:
-    """The target from the latest run whose summary names one."""
-    known = table["target_radius_mm"].dropna()
-    return float(known.iloc[-1]) if len(known) else None
 
 
 @dataclass(frozen=True)
@@ -107,7 +107,7 @@ def trend(table: pd.DataFrame, kind: str, target_mm: float | None, band_mm: floa
         return unclear("the radius went back and forth by more than its uncertainty", **kw)
     if math.copysign(1.0, slope) != math.copysign(1.0, to_go):
         return unclear("the radius is moving away from the target", **kw)
-    left = math.ceil(to_go / slope)
+    left = max(1, math.ceil(round(to_go / slope, 6)))  # rounded first: 3.0000000001 sessions is 3
     per = from_mm(abs(slope), unit)
     return Trend(kind, True, f"{kind}: about {left} more session{'s' if left != 1 else ''} at the current rate "
                              f"({per:.3g} {unit} per session, {from_mm(abs(to_go), unit):.4g} {unit} to go).",
@@ -168,7 +168,8 @@ def write_history(run_dirs, out_png, target_radius: float | None = None, toleran
         if v is not None and not (math.isfinite(v) and v > 0):
             raise UserError(f"{name} {v}: must be a positive length in {unit}")
     table = history_table(runs, None if target_radius is None else to_mm(target_radius, unit))
-    target_mm = pick_target_mm(table)
+    target_mm = float(table["target_radius_mm"].iloc[0])
+    target_mm = target_mm if math.isfinite(target_mm) else None
     if tolerance is not None:
         band_mm, band_label = to_mm(tolerance, unit), "tolerance"
     else:

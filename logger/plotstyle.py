@@ -10,6 +10,7 @@ through Agg and lets tests inspect the artists directly.
 
 from __future__ import annotations
 
+import contextlib
 import os
 import tempfile
 from pathlib import Path
@@ -78,7 +79,10 @@ def _atomic(path: Path, write, binary: bool) -> Path:
         with os.fdopen(fd, "wb" if binary else "w", **({} if binary else {"encoding": "utf-8", "newline": "\n"})) as fh:
             write(fh)
         os.replace(tmp, path)
-    except BaseException:
-        os.unlink(tmp)
+    except BaseException as exc:
+        with contextlib.suppress(OSError):
+            os.unlink(tmp)
+        if isinstance(exc, OSError):
+            raise UserError(f"{path}: cannot write: {exc.strerror or exc}") from None
         raise
     return path
