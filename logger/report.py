@@ -30,6 +30,7 @@ from .runs import Run, load_run
 from .units import UNITS, from_mm
 
 MAX_TRACE_POINTS = 20_000  # drawn points of the reading trace, at most (plus gap breaks)
+MAX_HATCHED_WINDOWS = 400  # beyond this, seated windows are drawn without hatching
 MAX_REASON_NOTES = 25  # rejected seatings annotated in the figure; all are in report.md
 
 
@@ -200,6 +201,8 @@ def make_report_figure(run: Run, unit: str | None = None):
         trace.text(0.5, 0.5, "no readings in this run", transform=trace.transAxes, ha="center", fontsize=12)
     for phase, style in (("flat", ps.FLAT_WINDOW), ("surface", ps.SURFACE_WINDOW)):
         w = st[st["phase"] == phase]
+        if len(w) > MAX_HATCHED_WINDOWS:  # hatching thousands of thin windows costs seconds, shows nothing
+            style = {k: v for k, v in style.items() if k != "hatch"}
         if len(w):
             spans = list(zip(w["t_start_s"] / 60, (w["t_end_s"] - w["t_start_s"]) / 60))
             trace.broken_barh(spans, (0, 1), transform=trace.get_xaxis_transform(), gid=f"windows-{phase}",
