@@ -70,3 +70,9 @@ def main():
     Lengths on the command line are in the profile's unit; every file a run
     writes holds millimetres.
     """
+
+
+from .report import report_command  # noqa: E402
+main.add_command(report_command)
+from .history import history_command  # noqa: E402
+main.add_command(history_command)
