@@ -25,6 +25,8 @@ COMMANDS = {
     "new-profile": "logger.calc:new_profile",
     "replay": "logger.replay:replay_cmd",
     "capture": "logger.capture:capture_cmd",
+    "report": "logger.report:report_command",
+    "history": "logger.history:history_command",
 }
 
 
@@ -70,9 +72,3 @@ def main():
     Lengths on the command line are in the profile's unit; every file a run
     writes holds millimetres.
     """
-
-
-from .report import report_command  # noqa: E402
-main.add_command(report_command)
-from .history import history_command  # noqa: E402
-main.add_command(history_command)
