@@ -27,7 +27,7 @@ from .options import analysis_options
 from .pipeline import Pipeline, RunSettings
 from .present import result_lines
 from .profile import Profile
-from .recording import RecWriter
+from .recording import RecWriter, escape
 from .runfolder import RunWriter, prepare_folder
 from .source import SerialSource
 
@@ -94,8 +94,7 @@ def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | P
             except DeviceGone:
                 gap_start = time.monotonic() - t0
                 for raw in splitter.flush():  # a half line before the cut is still a received line
-                    rec.write(gap_start, raw)
-                    pipeline.line(gap_start, raw)
+                    _take(rec, pipeline, gap_start, raw)
                 view.state_changed("waiting for device")
                 view.refresh(pipeline.summary)
                 _reconnect(src, stop, view)
@@ -107,8 +106,7 @@ def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | P
             now = time.monotonic() - t0
             if chunk:
                 for raw in splitter.feed(chunk):
-                    rec.write(now, raw)
-                    pipeline.line(now, raw)
+                    _take(rec, pipeline, now, raw)
             pipeline.tick(now)
             if now - (last_rec_flush - t0) >= REC_FLUSH_S:
                 rec.flush()
@@ -121,14 +119,20 @@ def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | P
     finally:
         end = time.monotonic() - t0
         for raw in splitter.flush():
-            rec.write(end, raw)
-            pipeline.line(end, raw)
+            _take(rec, pipeline, end, raw)
         rec.comment(f"end {end:.6f}")
         rec.close()
         summary = pipeline.finish(end)
         src.close()
         view.refresh(summary)
     return summary
+
+
+def _take(rec: RecWriter, pipeline: Pipeline, t_s: float, raw: bytes) -> None:
+    """One received line: into the recording and the pipeline, escaped once for both."""
+    text = escape(raw)
+    rec.write_text(t_s, text)
+    pipeline.line(t_s, raw, text)
 
 
 def _reconnect(src: SerialSource, stop: _Stop, view) -> None:

@@ -130,25 +130,46 @@ class Decoder:
     """Line -> Reading, with no configuration beyond the unit for unit-less lines.
 
     A line's own unit wins, line by line, so pressing the indicator's unit
-    button mid-stream is handled.  Counts good and bad lines.
+    button mid-stream is handled.  Counts good and bad lines.  An indicator
+    repeats a few hundred distinct lines over and over (one per count), so
+    decoded lines are remembered: a bounded memo, cleared when full.
     """
+
+    MEMO_SIZE = 4096
 
     def __init__(self, default_unit: str = "mm", max_line: int = MAX_LINE):
         self.default_unit = default_unit
         self.max_line = max_line
         self.good = 0
         self.bad = 0
+        self._memo: dict[bytes, tuple[float | None, str | None, str]] = {}
+
+    def value(self, raw: bytes) -> tuple[float | None, str | None, str]:
+        """(value_mm, unit, why bad) for one line; the hot path of the pipeline."""
+        hit = self._memo.get(raw)
+        if hit is None:
+            hit = self._parse(raw)
+            if len(self._memo) >= self.MEMO_SIZE:
+                self._memo.clear()
+            self._memo[raw] = hit
+        if hit[0] is None:
+            self.bad += 1
+        else:
+            self.good += 1
+        return hit
 
     def decode(self, raw: bytes, t_s: float, t_wall: float) -> Reading:
+        value_mm, unit, bad = self.value(raw)
+        return Reading(t_s, t_wall, raw, value_mm, unit, bad)
+
+    def _parse(self, raw: bytes) -> tuple[float | None, str | None, str]:
         m = _READING.match(raw) if len(raw) < self.max_line else None
         if m is None:
             frame = decode_frame_line(raw) if raw[:2] == b"F:" else None
             if frame is not None:  # the bridge's raw-frame mode (logger.frames)
-                self.good += 1
                 value, unit_name = frame
-                return Reading(t_s, t_wall, raw, value * MM_PER_INCH if unit_name == "in" else value, unit_name)
-            self.bad += 1
-            return Reading(t_s, t_wall, raw, None, None, _why_bad(raw, self.max_line))
+                return (value * MM_PER_INCH if unit_name == "in" else value), unit_name, ""
+            return None, None, _why_bad(raw, self.max_line)
         sign, digits, unit = m.groups()
         value = float(digits.replace(b",", b"."))
         if sign == b"-":
@@ -159,8 +180,7 @@ class Decoder:
             unit_name = "mm" if unit[:1] in b"mM" else "in"
         if unit_name == "in":
             value *= MM_PER_INCH
-        self.good += 1
-        return Reading(t_s, t_wall, raw, value, unit_name)
+        return value, unit_name, ""
 
 
 def _why_bad(raw: bytes, max_line: int) -> str:

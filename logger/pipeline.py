@@ -17,6 +17,7 @@ from dataclasses import asdict, dataclass, field
 from . import __version__
 from .decode import Decoder, Reading
 from .profile import Profile
+from .recording import escape
 from .runfolder import RunWriter, iso_utc
 from .seating import DetectorSettings, Seating, SeatingDetector
 from .session import AnalysisSettings, SessionResult, analyse
@@ -58,6 +59,7 @@ class Pipeline:
         self.writer = writer
         self.start_wall = start_wall
         self.listener = listener or Listener()
+        self._wants_readings = type(self.listener).reading is not Listener.reading
         self.decoder = Decoder(profile.indicator.unit)
         self.detector = SeatingDetector(settings.detector, profile.indicator.sign)
         self.seatings: list[Seating] = []
@@ -71,23 +73,26 @@ class Pipeline:
         self.live = live
 
     # -- feeding --------------------------------------------------------
-    def line(self, t_s: float, raw: bytes, t_wall: float | None = None) -> Reading:
+    def line(self, t_s: float, raw: bytes, text: str | None = None, t_wall: float | None = None) -> None:
+        """One received line; `text` is its escaped form if the caller has it already."""
         if t_wall is None:
             t_wall = self.start_wall + t_s
         self.last_t_s = t_s
-        reading = self.decoder.decode(raw, t_s, t_wall)
-        if reading.value_mm is None:
+        value_mm, unit, bad = self.decoder.value(raw)
+        if value_mm is None:
             state, index = BAD, None
         else:
-            done = self.detector.feed(t_s, reading.value_mm)
-            state, index = self.detector.state, self.detector.current_index
+            detector = self.detector
+            done = detector.feed(t_s, value_mm)
+            state, index = detector.state, detector.current_index
             if done is not None:
                 self._seating(done)
-            self._notify_state()
+            if state != self._state:
+                self._notify_state()
         if self.writer is not None:
-            self.writer.sample(t_s, t_wall, raw, reading.value_mm, state, index)
-        self.listener.reading(reading, state)
-        return reading
+            self.writer.sample(t_s, t_wall, escape(raw) if text is None else text, value_mm, state, index)
+        if self._wants_readings:
+            self.listener.reading(Reading(t_s, t_wall, raw, value_mm, unit, bad), state)
 
     def tick(self, t_s: float) -> None:
         self.detector.advance(t_s)

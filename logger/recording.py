@@ -10,6 +10,7 @@ case), so CR shows as \\x0d.  Lines starting with '#' are comments: a header
 
 from __future__ import annotations
 
+import functools
 import os
 import re
 import time
@@ -24,6 +25,7 @@ _NEEDS_ESCAPE = re.compile(rb"[^\x20-\x5b\x5d-\x7e]")
 _ESCAPED = re.compile(r"\\x([0-9a-f]{2})")
 
 
+@functools.lru_cache(maxsize=4096)  # lines repeat: one per indicator count
 def escape(raw: bytes) -> str:
     if not _NEEDS_ESCAPE.search(raw):
         return raw.decode("ascii")
@@ -61,6 +63,10 @@ class RecWriter:
 
     def write(self, t_s: float, raw: bytes) -> None:
         self._write(f"{t_s:.6f}\t{escape(raw)}\n")
+
+    def write_text(self, t_s: float, text: str) -> None:
+        """A line already escaped (the capture escapes each line once for all its files)."""
+        self._write(f"{t_s:.6f}\t{text}\n")
 
     def comment(self, text: str) -> None:
         self._write(f"# {text}\n")
@@ -106,8 +112,8 @@ def read_header(path: str | Path) -> dict:
 
 
 def read_recording(path: str | Path, on_comment: Callable[[str], None] | None = None
-                   ) -> tuple[dict, Iterator[tuple[float, bytes]]]:
-    """Header and a lazy iterator of (t_s, raw); body comments go to `on_comment` in order.
+                   ) -> tuple[dict, Iterator[tuple[float, bytes, str]]]:
+    """Header and a lazy iterator of (t_s, raw, escaped text); body comments go to `on_comment` in order.
 
     A malformed record raises UserError naming the file and line, after every
     record before it has been yielded.
@@ -115,25 +121,24 @@ def read_recording(path: str | Path, on_comment: Callable[[str], None] | None = 
     header = read_header(path)
 
     def records():
+        lineno = 0
         with open(path, encoding="utf-8", errors="strict", newline="\n") as f:
             try:
                 for lineno, line in enumerate(f, 1):
-                    if line.startswith("#"):
+                    if line[:1] == "#":
                         if on_comment is not None:
                             on_comment(line[1:].strip())
                         continue
                     tab = line.find("\t")
                     try:
-                        t_s = float(line[:tab]) if tab > 0 else None
+                        t_s = float(line[:tab])
                     except ValueError:
-                        t_s = None
-                    text = line[tab + 1:].rstrip("\n")
-                    if t_s is None:
                         if not line.strip():
                             continue
-                        raise UserError(f"{path}:{lineno}: not a recording record (time TAB line expected)")
+                        raise UserError(f"{path}:{lineno}: not a recording record (time TAB line expected)") from None
+                    text = line[tab + 1:-1] if line[-1:] == "\n" else line[tab + 1:]
                     try:
-                        yield t_s, unescape(text)
+                        yield t_s, unescape(text), text
                     except UnicodeEncodeError:
                         raise UserError(f"{path}:{lineno}: unescaped non-ASCII text in a record") from None
             except UnicodeDecodeError:
@@ -143,13 +148,13 @@ def read_recording(path: str | Path, on_comment: Callable[[str], None] | None = 
 
 
 def read_plain(path: str | Path, rate_hz: float, block: int = 1 << 16) -> Iterator[tuple[float, bytes]]:
-    """A raw capture without timestamps: lines at `rate_hz`, times i / rate."""
+    """A raw capture without timestamps: (t_s, raw, escaped text) at `rate_hz`, times i / rate."""
     splitter = LineSplitter()
     i = 0
     with open(path, "rb") as f:
         while chunk := f.read(block):
             for raw in splitter.feed(chunk):
-                yield i / rate_hz, raw
+                yield i / rate_hz, raw, escape(raw)
                 i += 1
     for raw in splitter.flush():
-        yield i / rate_hz, raw
+        yield i / rate_hz, raw, escape(raw)

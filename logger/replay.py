@@ -55,8 +55,8 @@ def replay_file(path: str | Path, profile: Profile, settings: RunSettings, out_d
     pipeline = Pipeline(profile, settings, RunWriter(out, start_wall, settings.as_dict(profile)), start_wall, listener,
                         live=False)
     try:
-        for t_s, raw in records:
-            pipeline.line(t_s, raw)
+        for t_s, raw, text in records:
+            pipeline.line(t_s, raw, text)
     finally:
         pipeline.finish(end_s)
     return pipeline.summary

@@ -23,7 +23,6 @@ import time
 from pathlib import Path
 
 from .errors import UserError
-from .recording import escape
 
 SAMPLE_COLUMNS = ("time", "t_s", "raw", "value_mm", "state", "seating")
 SEATING_COLUMNS = ("index", "start", "end", "t_start_s", "t_end_s", "phase", "value_mm", "spread_mm", "n",
@@ -134,11 +133,17 @@ class RunWriter:
         except OSError as exc:
             raise UserError(f"{self.dir / name}: cannot write ({exc.strerror or exc})") from None
 
-    def sample(self, t_s: float, t_wall: float, raw: bytes, value_mm, state: str, seating) -> None:
-        v = "" if value_mm is None else f"{value_mm:.6f}"
-        s = "" if seating is None else str(seating)
+    def sample(self, t_s: float, t_wall: float, text: str, value_mm, state: str, seating) -> None:
+        """One samples.csv row; `text` is the line already escaped as in the recording."""
+        if value_mm is None:  # a bad line: free text, guarded
+            row = f"{iso_utc(t_wall)},{t_s:.6f},{csv_text(text)},,{state},\n"
+        else:  # a reading: a number by construction, only quoted (decimal commas, inch marks)
+            s = "" if seating is None else seating
+            if '"' in text:
+                text = text.replace('"', '""')
+            row = f'{iso_utc(t_wall)},{t_s:.6f},"{text}",{value_mm:.6f},{state},{s}\n'
         try:
-            self._samples.write(f"{iso_utc(t_wall)},{t_s:.6f},{csv_text(escape(raw))},{v},{state},{s}\n")
+            self._samples.write(row)
         except OSError as exc:
             raise UserError(f"{self.dir / 'samples.csv'}: cannot write ({exc.strerror or exc})") from None
 

@@ -76,6 +76,7 @@ class SeatingDetector:
 
     def __init__(self, settings: DetectorSettings, sign: int = 1):
         self.s = settings
+        self._band, self._lift = settings.band_mm, settings.lift_mm
         self.sign = 1 if sign >= 0 else -1
         self.state = LIFTED
         self.count = 0
@@ -99,12 +100,14 @@ class SeatingDetector:
             self.state = SETTLING  # an on-change stream gone quiet: the value is holding
 
     def feed(self, t_s: float, value_mm: float) -> Seating | None:
-        """One reading; returns a Seating when this reading ended one."""
-        self.advance(t_s)
+        """One reading; returns a Seating when this reading ended one.  (The hot path: kept lean.)"""
         self._last_t = t_s
         if self.state == SEATED:
-            if abs(value_mm - self._centre) <= self.s.lift_mm:
-                self._append(t_s, value_mm)
+            if -self._lift <= value_mm - self._centre <= self._lift:
+                self._t.append(t_s)
+                self._v.append(value_mm)
+                if len(self._t) > _COMPACT_AT:
+                    self._compact()
                 # running centre: slow enough to ignore noise, quick enough for creep
                 self._centre += (value_mm - self._centre) * 0.05
                 return None
@@ -112,8 +115,13 @@ class SeatingDetector:
             self._most_out = self.sign * value_mm
             self._restart(t_s, value_mm)
             return finished
-        self._most_out = min(self._most_out, self.sign * value_mm)
-        if self._t and abs(value_mm - self._v[0]) <= self.s.band_mm:
+        self.advance(t_s)
+        if self.state == SEATED:
+            return self.feed(t_s, value_mm)
+        oriented = self.sign * value_mm
+        if oriented < self._most_out:
+            self._most_out = oriented
+        if self._t and -self._band <= value_mm - self._v[0] <= self._band:
             if not self._resting:
                 self._append(t_s, value_mm)
                 self.state = SETTLING
