@@ -24,6 +24,7 @@ _READING = re.compile(
     re.IGNORECASE,
 )
 _LINE = re.compile(rb"([^\r\n]*)(\r\n|\r|\n)")
+_NON_TEXT = re.compile(rb"[^\t\r\x20-\x7e]")
 
 
 @dataclass(frozen=True, slots=True)
@@ -83,7 +84,10 @@ class LineSplitter:
         out: list[bytes] = []
         pos = 0
         limit = self.max_line
-        for m in _LINE.finditer(data):
+        # Match only up to the last line ending: a regex scan over an
+        # unterminated tail would retry at every byte (quadratic in its length).
+        end = max(data.rfind(b"\n"), data.rfind(b"\r")) + 1
+        for m in _LINE.finditer(data, 0, end):
             body = m.group(1)
             if self._discarding:
                 self.bytes_dropped += len(body)
@@ -100,8 +104,8 @@ class LineSplitter:
             out.append(line)
             pos = m.end()
         rest = data[pos:]
-        if pos and data[pos - 1 : pos] == b"\r":
-            self._skip_lf = True
+        if not rest and data.endswith(b"\r"):
+            self._skip_lf = True  # only a CR at the very end may have its LF in the next block
         if self._discarding:
             self.bytes_dropped += len(rest)
             rest = b""
@@ -188,6 +192,6 @@ def _why_bad(raw: bytes, max_line: int) -> str:
         return "over-long line"
     if not raw.strip(b" \t\r"):
         return "empty line"
-    if any(b < 0x20 and b not in (9, 13) or b >= 0x7F for b in raw):
+    if _NON_TEXT.search(raw):
         return "non-text bytes (wrong baud rate or line noise?)"
     return "not a reading"
