@@ -20,7 +20,7 @@ from . import geometry, outliers
 from .errors import UserError
 from .profile import Profile
 from .seating import Seating
-from .uncertainty import Budget, Component, radius_budget
+from .uncertainty import Budget, Component, radius_budget, reading_components
 
 FLAT, SURFACE = "flat", "surface"
 
@@ -272,10 +272,7 @@ def _analyse(seatings: list[Seating], profile: Profile, settings: AnalysisSettin
             "One surface seating gives a radius but no uncertainty: seat the surface again."))
         return SessionResult(decisions, summary)
 
-    comps = [Component("seating scatter", sd / math.sqrt(n), 1.0, n - 1, "A", "t")]
-    # Averaging beats the step only when the seatings scatter by at least about one count.
-    u_res = step / math.sqrt(12) / (math.sqrt(n) if sd >= step else 1.0)
-    comps.append(Component("indicator resolution", u_res, 1.0, math.inf, "B", "rectangular"))
+    comps = reading_components(step, sd, n)  # scatter, and the step's terms while it is below one count
     comps.append(Component("zero on the flat", u_zero, 1.0, zero.dof, "A", "t" if math.isfinite(zero.dof) else "normal"))
     budget = radius_budget(profile.spherometer, surface, s_mean, comps)
     u_sag = math.sqrt(sum(c.u**2 for c in comps))

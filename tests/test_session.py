@@ -147,9 +147,10 @@ def test_budget_combines_as_gum_equation_10():
     res = analyse(seatings, make_profile(), AnalysisSettings())
     sag = np.array([d.sagitta_mm for d in res.decisions if d.phase == "surface" and d.accepted])
     u_a = sag.std(ddof=1) / math.sqrt(len(sag))
-    u_res = 0.001 / math.sqrt(12) / math.sqrt(len(sag))  # scatter above one count: dithered
+    # scatter above one count: the step is dithered away, no resolution term (DESIGN.md, common practice)
+    assert not any("resolution" in c.name for c in res.budget.components)
     u_zero = res.summary["zero_u_mm"]
-    u_s = math.sqrt(u_a**2 + u_res**2 + u_zero**2)
+    u_s = math.sqrt(u_a**2 + u_zero**2)
     assert math.isclose(res.summary["sagitta_u_mm"], u_s, rel_tol=1e-9)
     contributions = [c.contribution for c in res.budget.components]
     assert math.isclose(res.budget.u_c, math.sqrt(sum(c * c for c in contributions)), rel_tol=1e-12)
@@ -162,3 +163,6 @@ def test_same_count_is_said_and_resolution_kept():
     s = analyse(seatings, make_profile(), AnalysisSettings()).summary
     assert s["same_count"] is True and s["radius_U_mm"] > 0
     assert "same count" in s["message"]
+    # the resolution stays in the budget: q / sqrt(12) per reading, rectangular (GUM F.2.2.1)
+    res_terms = [b for b in s["budget"] if "resolution" in b["name"]]
+    assert len(res_terms) == 2 and all(math.isclose(b["u_mm"], q / math.sqrt(12)) for b in res_terms)
