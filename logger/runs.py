@@ -5,7 +5,7 @@ samples.csv, settings.json, stream.rec).  This module is the one reader of
 it, so the report, the history and a user's own notebook all see the same
 typed tables: times as UTC datetimes, `accepted` as bool, numbers as floats
 with NaN where the file has an empty cell.  The column documentation lives
-here once (`SEATINGS_COLUMNS`, `SAMPLES_COLUMNS`); docs/notes-reports.md
+here once (`SEATINGS_COLUMNS`, `SAMPLES_COLUMNS`); docs/reports.md
 holds `columns_markdown()` verbatim and a test keeps the two identical.
 Text cells may carry a leading apostrophe that keeps spreadsheets from
 running them as formulas; the loader removes it.
@@ -71,7 +71,7 @@ SUMMARY_FILE, SEATINGS_FILE, SAMPLES_FILE, SETTINGS_FILE, RECORDING_FILE = (
 
 
 def columns_markdown() -> str:
-    """The CSV column documentation as Markdown (copied verbatim into docs/notes-reports.md)."""
+    """The CSV column documentation as Markdown (copied verbatim into docs/reports.md)."""
     out = []
     for fname, cols in ((SEATINGS_FILE, SEATINGS_COLUMNS), (SAMPLES_FILE, SAMPLES_COLUMNS)):
         out += [f"`{fname}` columns, in this order:", "", "| column | loaded as | meaning |", "|---|---|---|"]

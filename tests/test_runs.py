@@ -288,5 +288,5 @@ def test_top_level_import_resolves():
 
 def test_docs_hold_the_column_table_verbatim():
     # The one place the columns are documented is logger.runs; the notes must carry it unchanged.
-    notes = (REPO / "docs" / "notes-reports.md").read_text(encoding="utf-8")
+    notes = (REPO / "docs" / "reports.md").read_text(encoding="utf-8")
     assert columns_markdown() in notes
