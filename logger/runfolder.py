@@ -22,11 +22,11 @@ import re
 import time
 from pathlib import Path
 
+from .columns import SAMPLES_COLUMNS, SEATINGS_COLUMNS
 from .errors import UserError
 
-SAMPLE_COLUMNS = ("time", "t_s", "raw", "value_mm", "state", "seating")
-SEATING_COLUMNS = ("index", "start", "end", "t_start_s", "t_end_s", "phase", "value_mm", "spread_mm", "n",
-                   "accepted", "reason", "zero_mm", "sagitta_mm", "score")
+SAMPLE_COLUMNS = tuple(c.name for c in SAMPLES_COLUMNS)
+SEATING_COLUMNS = tuple(c.name for c in SEATINGS_COLUMNS)
 FLUSH_EVERY_S = 0.5
 
 
