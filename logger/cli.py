@@ -49,3 +49,7 @@ def main():
     Lengths on the command line are in the profile's unit; every file a run
     writes holds millimetres.
     """
+
+from .ports_cmd import ports as _ports  # noqa: E402  (registered last: the command modules import nothing from here)
+
+main.add_command(_ports)
