@@ -57,7 +57,7 @@ def _open_with_wait(src: SerialSource, wait_s: float, stop: _Stop, on_wait) -> N
             src.open()
             return
         except DeviceNotFound as exc:
-            if "permission" in str(exc).lower() or "busy" in str(exc).lower():
+            if not exc.absent:
                 raise
             if time.monotonic() >= deadline or stop.requested:
                 raise NeverAppeared(str(exc)) from None

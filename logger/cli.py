@@ -27,6 +27,7 @@ COMMANDS = {
     "capture": "logger.capture:capture_cmd",
     "report": "logger.report:report_command",
     "history": "logger.history:history_command",
+    "ports": "logger.ports_cmd:ports",
 }
 
 

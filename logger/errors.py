@@ -17,4 +17,10 @@ class DeviceGone(Exception):
 
 
 class DeviceNotFound(UserError):
-    """The port could not be opened at all (missing, busy, no permission)."""
+    """The port could not be opened at all (missing, busy, no permission).
+
+    `absent` is true when the device is simply not there (yet), which a
+    capture may wait for; a bad URL, a busy port or a permission problem is not.
+    """
+
+    absent = False

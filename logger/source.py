@@ -1,11 +1,11 @@
-"""Byte sources: serial devices and bridges through pyserial's URL handlers.
+"""Where the bytes come from: a serial port or any pyserial URL.
 
-`serial_for_url` picks the transport by the URL's scheme (a device path or
-COM name, socket://host:port, rfc2217://host:port, loop://), so nothing
-above this module knows where the bytes come from.  Reads are block reads:
-whatever is waiting, or one byte with a short timeout, never a Python loop
-per byte.  A device that vanishes raises DeviceGone; one that cannot be
-opened raises DeviceNotFound with the usual fix in the message.
+pyserial's `serial_for_url` picks the transport from the URL (a device path
+or COM name, socket://host:port for a network bridge, rfc2217://, loop://),
+so nothing above this module knows or cares which one it is.  Reads are
+block reads with a short timeout, never byte-by-byte.  Failing to open is a
+`DeviceNotFound` (a UserError with one clear line); a link that dies while
+open is `DeviceGone`, which the capture layer catches to reconnect.
 """
 
 from __future__ import annotations
@@ -16,62 +16,85 @@ import time
 import serial
 import serial.tools.list_ports
 
-from .errors import DeviceGone, DeviceNotFound
+from .errors import DeviceGone, DeviceNotFound, UserError
 
 PARITIES = {"N": serial.PARITY_NONE, "E": serial.PARITY_EVEN, "O": serial.PARITY_ODD,
             "M": serial.PARITY_MARK, "S": serial.PARITY_SPACE}
+BYTESIZES = (5, 6, 7, 8)
+STOPBITS = (1, 1.5, 2)
 
 
 class SerialSource:
-    def __init__(self, url: str, baudrate: int = 9600, bytesize: int = 8, parity: str = "N", stopbits: float = 1,
-                 poll_command: bytes | None = None, poll_interval_s: float = 0.5, read_timeout_s: float = 0.05):
-        self.url = url
-        self.baudrate, self.bytesize, self.parity, self.stopbits = baudrate, bytesize, parity, stopbits
-        self.poll_command = poll_command
-        self.poll_interval_s = poll_interval_s
-        self.read_timeout_s = read_timeout_s
+    """One open port; `read_block()` returns whatever bytes arrived (b"" on timeout)."""
+
+    def __init__(self, url: str, baudrate=9600, bytesize=8, parity="N", stopbits=1,
+                 poll_command: bytes | None = None, poll_interval_s: float = 0.5,
+                 read_timeout_s: float = 0.05):
+        self.url = str(url)
+        self.baudrate = _check_int(baudrate, "baud rate", 1)
+        self.bytesize = _check_choice(_as_number(bytesize, "byte size"), BYTESIZES, "byte size")
+        self.parity = _check_choice(str(parity).upper()[:1], tuple(PARITIES), "parity")
+        self.stopbits = _check_choice(_as_number(stopbits, "stop bits"), STOPBITS, "stop bits")
+        self.poll_command = bytes(poll_command) if poll_command else None
+        if not poll_interval_s > 0:
+            raise UserError(f"poll interval must be positive, got {poll_interval_s!r}")
+        self.poll_interval_s = float(poll_interval_s)
+        self.read_timeout_s = float(read_timeout_s)
         self._ser = None
         self._next_poll = 0.0
 
-    def settings(self) -> dict:
-        return {"port": self.url, "baudrate": self.baudrate, "bytesize": self.bytesize, "parity": self.parity,
-                "stopbits": self.stopbits,
-                "poll": None if self.poll_command is None else self.poll_command.decode("latin-1"),
-                "poll_interval_s": self.poll_interval_s if self.poll_command else None}
-
     def open(self) -> None:
+        if self._ser is not None:
+            return
         try:
             self._ser = serial.serial_for_url(
                 self.url, baudrate=self.baudrate, bytesize=self.bytesize, parity=PARITIES[self.parity],
-                stopbits=self.stopbits, timeout=self.read_timeout_s, exclusive=True, do_not_open=False)
+                stopbits=self.stopbits, timeout=self.read_timeout_s, write_timeout=1.0, exclusive=True,
+            )
         except (serial.SerialException, OSError, ValueError) as exc:
-            raise DeviceNotFound(_why_not(self.url, exc)) from None
+            err = DeviceNotFound(open_error_message(self.url, exc))
+            err.absent = _absent(exc)
+            raise err from None
         self._next_poll = time.monotonic()
 
     def read_block(self) -> bytes:
-        """Whatever has arrived, or b'' after the read timeout; DeviceGone when the link is lost."""
         ser = self._ser
         if ser is None:
             raise DeviceGone(f"{self.url}: not open")
         try:
-            if self.poll_command is not None and time.monotonic() >= self._next_poll:
-                ser.write(self.poll_command)
-                self._next_poll = time.monotonic() + self.poll_interval_s
-            waiting = ser.in_waiting
-            data = ser.read(waiting or 1)
+            if self.poll_command is not None:
+                now = time.monotonic()
+                if now >= self._next_poll:
+                    ser.write(self.poll_command)
+                    self._next_poll = max(self._next_poll + self.poll_interval_s, now)
+            data = ser.read(ser.in_waiting or 1)
+            if len(data) == 1:  # woke on the first byte: take the rest of the burst too
+                more = ser.in_waiting
+                if more:
+                    data += ser.read(more)
+            return data
         except (serial.SerialException, OSError) as exc:
-            raise DeviceGone(f"{self.url}: {exc}") from None
-        if not data and self.url.startswith("socket://") and _socket_closed(ser):
-            raise DeviceGone(f"{self.url}: the bridge closed the connection")
-        return data
+            raise DeviceGone(f"{self.url}: device or link gone ({exc})") from None
 
     def close(self) -> None:
-        if self._ser is not None:
+        ser, self._ser = self._ser, None
+        if ser is not None:
             try:
-                self._ser.close()
+                ser.close()
             except (serial.SerialException, OSError):
-                pass
-            self._ser = None
+                pass  # already gone; nothing left to release
+
+    @property
+    def is_open(self) -> bool:
+        return self._ser is not None
+
+    def settings(self) -> dict:
+        """The port settings, for a recording's header."""
+        poll = "none"
+        if self.poll_command is not None:
+            poll = f"{self.poll_command!r} every {self.poll_interval_s:g} s"
+        return {"url": self.url, "baudrate": self.baudrate, "bytesize": self.bytesize,
+                "parity": self.parity, "stopbits": self.stopbits, "poll": poll}
 
     def __enter__(self):
         self.open()
@@ -81,41 +104,67 @@ class SerialSource:
         self.close()
 
 
-def _socket_closed(ser) -> bool:
-    """pyserial's socket handler returns b'' both on timeout and on EOF; peek to tell them apart."""
-    import socket
-
-    sock = getattr(ser, "_socket", None)
-    if sock is None:
-        return True
-    try:
-        sock.setblocking(False)
-        try:
-            return sock.recv(1, socket.MSG_PEEK) == b""
-        finally:
-            sock.setblocking(True)
-            sock.settimeout(ser.timeout)
-    except BlockingIOError:
-        return False
-    except OSError:
-        return True
-
-
-def _why_not(url: str, exc: Exception) -> str:
-    err = getattr(exc, "errno", None)
+def open_error_message(url: str, exc: BaseException) -> str:
+    """One line a user can act on, for a port that will not open."""
+    code = getattr(exc, "errno", None)
     text = str(exc)
-    if err in (errno.EACCES, errno.EPERM) or "Permission denied" in text:
-        return (f"{url}: permission denied; add yourself to the group that owns the port "
-                "(on most Linux systems: sudo usermod -aG dialout $USER, then log in again)")
-    if err == errno.EBUSY or "busy" in text.lower() or "exclusively lock" in text:
-        return f"{url}: port busy; another program has it open"
-    if err == errno.ENOENT or "No such file" in text or "could not open port" in text:
-        return f"{url}: no such device; is the indicator plugged in? ('saglog ports' lists the ports)"
-    if "refused" in text.lower():
-        return f"{url}: connection refused; is the bridge running and listening?"
-    return f"{url}: cannot open ({text})"
+    low = text.lower()
+    if isinstance(exc, ValueError) or "invalid url" in low or "unknown url" in low or "expected" in low:
+        return f"{url}: not a valid port or URL ({text}); use a device path, a COM name or socket://host:port"
+    if url.lower().startswith(("socket://", "rfc2217://")) and not _has_port(url):
+        return f"{url}: a network URL needs a host and a port, e.g. socket://bridge.local:23"
+    if code == errno.ENOTTY or "inappropriate ioctl" in low:
+        return f"{url}: not a serial port"
+    if code == errno.ENOENT or "no such file" in low or "filenotfounderror" in low or "cannot find" in low:
+        return f"{url}: no such port (is the adapter plugged in? 'saglog ports' lists the ports)"
+    if code == errno.EACCES or "permission denied" in low:
+        return (f"{url}: permission denied (on Linux add yourself to the 'dialout' group: "
+                "sudo usermod -aG dialout $USER, then log out and in)")
+    if code in (errno.EBUSY, errno.EAGAIN) or "busy" in low or "exclusively lock" in low or "access is denied" in low:
+        return f"{url}: port is busy (another program has it open)"
+    if code == errno.ECONNREFUSED or "refused" in low:
+        return f"{url}: connection refused (nothing is listening there)"
+    if "timed out" in low or code in (errno.EHOSTUNREACH, errno.ENETUNREACH):
+        return f"{url}: network bridge not reachable ({text})"
+    return f"{url}: cannot open port ({text})"
+
+
+def _absent(exc: BaseException) -> bool:
+    """Not there (yet): worth waiting for, unlike a bad URL, a busy port or a permission problem."""
+    code = getattr(exc, "errno", None)
+    low = str(exc).lower()
+    return (code in (errno.ENOENT, errno.ECONNREFUSED, errno.EHOSTUNREACH, errno.ENETUNREACH)
+            or "no such file" in low or "refused" in low)
+
+
+def _has_port(url: str) -> bool:
+    rest = url.split("://", 1)[1].split("?", 1)[0]
+    host, sep, port = rest.rpartition(":")
+    return bool(sep and host and port.isdigit())
 
 
 def list_ports() -> list[dict]:
-    return [{"device": p.device, "description": p.description, "hwid": p.hwid}
+    """The serial ports this machine has, with what the system says about each."""
+    return [{"device": p.device, "description": p.description or "", "hwid": p.hwid or ""}
             for p in sorted(serial.tools.list_ports.comports(), key=lambda p: p.device)]
+
+
+def _as_number(value, what):
+    try:
+        f = float(value)
+    except (TypeError, ValueError):
+        raise UserError(f"{what} must be a number, got {value!r}") from None
+    return int(f) if f.is_integer() else f
+
+
+def _check_int(value, what, minimum):
+    v = _as_number(value, what)
+    if not isinstance(v, int) or v < minimum:
+        raise UserError(f"{what} must be a whole number of at least {minimum}, got {value!r}")
+    return v
+
+
+def _check_choice(value, choices, what):
+    if value not in choices:
+        raise UserError(f"{what} must be one of {', '.join(map(str, choices))}, got {value!r}")
+    return value
