@@ -191,7 +191,8 @@ def read_recording(path, on_comment: Callable[[str], None] | None = None
         start = _parse_utc(header["start_utc"])
         if start is not None:
             header["start_wall"] = start
-    return header, _records(p, f, first, lineno, on_comment)
+    # the first record was read (and counted) above; _records counts it again
+    return header, _records(p, f, first, lineno - 1 if first is not None else lineno, on_comment)
 
 
 def _records(p: Path, f, first: bytes | None, lineno: int, on_comment) -> Iterator[tuple[float, bytes, str]]:
