@@ -79,7 +79,13 @@ def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | P
     view.device = port
     _open_with_wait(src, wait_s, stop, lambda: view.state_changed("waiting for device"))
     t0 = time.monotonic()
-    start_wall = time.time()
+    start_wall = round(time.time(), 6)  # as the recording header states it
+
+    def clock() -> float:
+        # to the microsecond, as stream.rec keeps it: the replay then sees exactly what the capture saw
+        return round(time.monotonic() - t0, 6)
+
+    deadline = None if duration_s is None else t0 + duration_s
     settings.source = src.settings()
     rec = RecWriter(out / "stream.rec", start_wall, {**src.settings(), "profile": profile.source})
     writer = RunWriter(out, start_wall, settings.as_dict(profile))
@@ -92,18 +98,20 @@ def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | P
             try:
                 chunk = src.read_block()
             except DeviceGone:
-                gap_start = time.monotonic() - t0
+                gap_start = clock()
                 for raw in splitter.flush():  # a half line before the cut is still a received line
                     _take(rec, pipeline, gap_start, raw)
                 view.state_changed("waiting for device")
                 view.refresh(pipeline.summary)
-                _reconnect(src, stop, view)
-                gap_end = time.monotonic() - t0
+                _reconnect(src, stop, view, deadline)
+                gap_end = clock()
                 rec.comment(f"gap {gap_start:.6f} {gap_end:.6f}")
                 pipeline.gap(gap_start, gap_end)
+                if not src.is_open:
+                    break  # stopped or out of time while waiting
                 view.state_changed("lifted")
                 continue
-            now = time.monotonic() - t0
+            now = clock()
             if chunk:
                 for raw in splitter.feed(chunk):
                     _take(rec, pipeline, now, raw)
@@ -117,7 +125,7 @@ def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | P
             if surface_seatings is not None and pipeline.summary.get("seatings_surface", 0) >= surface_seatings:
                 break
     finally:
-        end = time.monotonic() - t0
+        end = clock()
         for raw in splitter.flush():
             _take(rec, pipeline, end, raw)
         rec.comment(f"end {end:.6f}")
@@ -135,11 +143,11 @@ def _take(rec: RecWriter, pipeline: Pipeline, t_s: float, raw: bytes) -> None:
     pipeline.line(t_s, raw, text)
 
 
-def _reconnect(src: SerialSource, stop: _Stop, view) -> None:
-    """Retry the same path with back-off until it opens again or a stop is asked for."""
+def _reconnect(src: SerialSource, stop: _Stop, view, deadline: float | None) -> None:
+    """Retry the same path with back-off until it opens again, a stop is asked for, or the run's time is up."""
     src.close()
     delay = 0.1
-    while not stop.requested:
+    while not stop.requested and (deadline is None or time.monotonic() < deadline):
         try:
             src.open()
             return
