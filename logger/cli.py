@@ -50,6 +50,8 @@ def main():
     writes holds millimetres.
     """
 
-from .ports_cmd import ports as _ports  # noqa: E402  (registered last: the command modules import nothing from here)
+from .ports_cmd import ports as _ports  # noqa: E402  (the command modules import nothing from here)
+from .simulator.cli import simulate_cmd as _simulate  # noqa: E402
 
 main.add_command(_ports)
+main.add_command(_simulate)
