@@ -163,7 +163,7 @@ def read_recording(path) -> tuple[dict, Iterator[tuple[float, bytes]]]:
         start = _parse_utc(header["start_utc"])
         if start is not None:
             header["start_wall"] = start
-    return header, _records(p, f, first, lineno)
+    return header, _records(p, f, first, lineno - 1 if first is not None else lineno)
 
 
 def _records(p: Path, f, first: bytes | None, lineno: int) -> Iterator[tuple[float, bytes]]:
