@@ -28,6 +28,7 @@ COMMANDS = {
     "report": "logger.report:report_command",
     "history": "logger.history:history_command",
     "ports": "logger.ports_cmd:ports",
+    "simulate": "logger.simulator.cli:simulate_cmd",
 }
 
 
