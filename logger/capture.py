@@ -27,7 +27,7 @@ from .options import analysis_options
 from .pipeline import Pipeline, RunSettings
 from .present import result_lines
 from .profile import Profile
-from .recording import RecWriter, escape
+from .recording import RecWriter, end_comment, escape, gap_comment
 from .runfolder import RunWriter, prepare_folder
 from .source import SerialSource
 
@@ -105,7 +105,7 @@ def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | P
                 view.refresh(pipeline.summary)
                 _reconnect(src, stop, view, deadline)
                 gap_end = clock()
-                rec.comment(f"gap {gap_start:.6f} {gap_end:.6f}")
+                rec.comment(gap_comment(gap_start, gap_end))
                 pipeline.gap(gap_start, gap_end)
                 if not src.is_open:
                     break  # stopped or out of time while waiting
@@ -128,7 +128,7 @@ def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | P
         end = clock()
         for raw in splitter.flush():
             _take(rec, pipeline, end, raw)
-        rec.comment(f"end {end:.6f}")
+        rec.comment(end_comment(end))
         rec.close()
         summary = pipeline.finish(end)
         src.close()

@@ -29,6 +29,7 @@ COMMANDS = {
     "history": "logger.history:history_command",
     "ports": "logger.ports_cmd:ports",
     "simulate": "logger.simulator.cli:simulate_cmd",
+    "demo": "logger.demo:demo_cmd",
 }
 
 

@@ -150,6 +150,27 @@ class RecWriter:
         self.close()
 
 
+def gap_comment(t_start_s: float, t_end_s: float) -> str:
+    """The comment a capture writes when the device was away from t_start to t_end."""
+    return f"gap {t_start_s:.6f} {t_end_s:.6f}"
+
+
+def end_comment(t_s: float) -> str:
+    """The comment a capture writes when it stopped (the last moment it was listening)."""
+    return f"end {t_s:.6f}"
+
+
+def parse_event(text: str) -> tuple[str, list[float]] | None:
+    """('gap', [t0, t1]) or ('end', [t]) for an event comment, None for any other comment."""
+    word, *args = text.split() or [""]
+    if (word, len(args)) not in (("gap", 2), ("end", 1)):
+        return None
+    try:
+        return word, [float(a) for a in args]
+    except ValueError:
+        return None
+
+
 def _one_line(value) -> str:
     return " ".join(str(value).split("\n"))
 

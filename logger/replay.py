@@ -11,7 +11,7 @@ from .options import analysis_options
 from .pipeline import Listener, Pipeline, RunSettings
 from .present import result_lines
 from .profile import Profile
-from .recording import is_recording, read_plain, read_recording
+from .recording import is_recording, parse_event, read_plain, read_recording
 from .runfolder import RunWriter, prepare_folder
 
 
@@ -30,14 +30,11 @@ def replay_file(path: str | Path, profile: Profile, settings: RunSettings, out_d
     def on_comment(text: str) -> None:
         # capture events kept in the recording, so the replay sees the run as the capture did
         nonlocal end_s
-        word, *args = text.split() or [""]
-        try:
-            if word == "gap" and len(args) == 2:
-                pipeline.gap(float(args[0]), float(args[1]))
-            elif word == "end" and len(args) == 1:
-                end_s = float(args[0])
-        except ValueError:
-            raise UserError(f"{path}: bad '# {text}' line") from None
+        event = parse_event(text)
+        if event is not None and event[0] == "gap":
+            pipeline.gap(*event[1])
+        elif event is not None:
+            end_s = event[1][0]
 
     if is_recording(path):
         header, records = read_recording(path, on_comment)

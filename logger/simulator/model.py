@@ -31,7 +31,7 @@ import numpy as np
 
 from .. import geometry
 from ..errors import UserError
-from ..recording import RecWriter
+from ..recording import RecWriter, gap_comment
 from ..units import from_mm, to_mm
 from .scenario import ENDINGS, Scenario
 
@@ -281,7 +281,7 @@ def write_recording(run: SimRun, path) -> None:
         for t, data in run.lines():
             while gaps and gaps[0]["t_start_s"] <= t:
                 gap = gaps.pop(0)
-                w.comment(f"device gone from {gap['t_start_s']:.6f} s to {gap['t_end_s']:.6f} s")
+                w.comment(gap_comment(gap["t_start_s"], gap["t_end_s"]))
             w.write(t, data[:-1] if data.endswith(b"\n") else data)
         for gap in gaps:
-            w.comment(f"device gone from {gap['t_start_s']:.6f} s to the end")
+            w.comment(gap_comment(gap["t_start_s"], max(gap["t_end_s"], gap["t_start_s"])))
