@@ -14,6 +14,10 @@ value holds; `advance(t)` tells the detector that time has passed).
 * lifted: the reading jumped by more than `lift_mm` (the spindle running out
   towards its stop), or it is moving and has not held yet.
 
+A rocking instrument never holds within `band_mm`; when it stays within half
+of `lift_mm` for three settle times it counts as a seating all the same (and
+its spread gets it rejected as unsteady), so no placement goes unreported.
+
 The seating's value is a robust, time-weighted centre of its settled samples:
 the first `trim_fraction` of the window (the tail of the settling transient)
 is left out, then samples further than four robust deviations from the
@@ -85,6 +89,8 @@ class SeatingDetector:
         self._centre = math.nan
         self._last_t = -math.inf
         self._resting = False  # holding still at the spindle's stop
+        self._ct: list[float] = []  # samples since the reading came roughly to rest (see _coarse)
+        self._cv: list[float] = []
         self._most_out = math.inf  # most-out oriented reading since the last seating ended
         self.current_index: int | None = None  # index of the seating in progress, once seated
 
@@ -129,7 +135,28 @@ class SeatingDetector:
                     self._hold_reached()
         else:
             self._restart(t_s, value_mm)
+        self._coarse(t_s, value_mm)
         return None
+
+    def _coarse(self, t_s: float, value_mm: float) -> None:
+        """A rocking instrument never holds within the band, yet it is a placement.
+
+        When the reading stays within half the lift threshold of where it
+        came to rest for three settle times, it counts as seated with every
+        sample since then; its large spread then gets it rejected as unsteady.
+        """
+        if self.state == SEATED or self._resting:
+            self._ct, self._cv = [], []
+            return
+        if self._ct and abs(value_mm - self._cv[0]) <= self._lift / 2:
+            self._ct.append(t_s)
+            self._cv.append(value_mm)
+            if t_s - self._ct[0] >= 3 * self.s.settle_s and len(self._ct) >= 3:
+                self._t, self._v = self._ct, self._cv
+                self._ct, self._cv = [], []
+                self._hold_reached()
+        else:
+            self._ct, self._cv = [t_s], [value_mm]
 
     def end(self, t_s: float | None = None) -> Seating | None:
         """End of stream or a gap in it: close a seating in progress."""
@@ -138,6 +165,7 @@ class SeatingDetector:
         done = self._finish(t_s if t_s is not None else self._last_t) if self.state == SEATED else None
         self.state = LIFTED
         self._t, self._v = [], []
+        self._ct, self._cv = [], []
         self._resting = False
         self._most_out = math.inf
         self.current_index = None
