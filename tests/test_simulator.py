@@ -291,3 +291,12 @@ def test_cli_errors_are_one_line():
     assert r.returncode == 2 and r.stderr.count("\n") == 1 and "no such scenario" in r.stderr
     r = run_cli("simulate")
     assert r.returncode == 2 and "exactly one of" in r.stderr
+
+
+def test_sample_streams_are_what_the_script_makes(tmp_path):
+    from logger.simulator.samples import make_samples
+
+    for p in make_samples(tmp_path):
+        shipped = REPO / "sample_streams" / p.name
+        assert shipped.read_bytes() == p.read_bytes(), f"{shipped} is stale: run python -m logger.simulator.samples"
+        assert shipped.stat().st_size < 1_000_000
