@@ -50,13 +50,23 @@ class _Segment:
 
 
 def _omega(tau: float, overshoot: float) -> float:
-    """Ring frequency of exp(-t/tau)*cos(w t) whose first swing past the target is `overshoot`.
+    """Ring frequency w of exp(-t/tau)*cos(w t) whose first swing past the target is `overshoot`.
 
-    The first extremum beyond the target is at w t = pi, where the envelope is exp(-pi/(w tau)).
+    With x = w tau the first extremum beyond the target is at w t = pi - atan(1/x)
+    (where the derivative vanishes), of size exp(-(pi - atan(1/x))/x) * x / sqrt(1 + x^2),
+    which grows with x; bisection finds x.
     """
     if overshoot <= 0:
         return 0.0
-    return -math.pi / (tau * math.log(overshoot))
+
+    def peak(x: float) -> float:
+        return math.exp(-(math.pi - math.atan(1 / x)) / x) * x / math.sqrt(1 + x * x)
+
+    lo, hi = 1e-3, 1e6
+    for _ in range(200):
+        mid = math.sqrt(lo * hi)
+        lo, hi = (mid, hi) if peak(mid) < overshoot else (lo, mid)
+    return lo / tau
 
 
 def _seg_value(seg: _Segment, t: float) -> float:

@@ -121,8 +121,8 @@ class Scenario:
             v = getattr(self, key)
             if not (isinstance(v, (int, float)) and math.isfinite(v) and v >= 0):
                 raise UserError(f"{where}: {key} must be a number >= 0, got {v!r}")
-        if not 1 <= self.rate_hz <= 5000:
-            raise UserError(f"{where}: rate must be between 1 and 5000 lines per second, got {self.rate_hz!r}")
+        if not 1 <= self.rate_hz <= 20000:
+            raise UserError(f"{where}: rate must be between 1 and 20000 lines per second, got {self.rate_hz!r}")
         if self.overshoot >= 1:
             raise UserError(f"{where}: overshoot is a fraction of the jump, below 1, got {self.overshoot!r}")
         for key in ("grit_probability", "rock_probability"):
