@@ -57,7 +57,9 @@ def test_round_trip_byte_exact(tmp_path_factory, recs):
             w.write(t, raw)
         w.comment("a gap: device gone for 2 s")
     header, it = read_recording(p)
-    back = list(it)
+    triples = list(it)
+    assert all(text == escape(raw) for _, raw, text in triples)  # the text is the field as written
+    back = [(t, raw) for t, raw, _ in triples]
     assert [r for _, r in back] == [r for _, r in recs]
     assert all(abs(a - b) <= 5e-7 * max(1.0, b) for (a, _), (b, _) in zip(back, recs))
     assert header["start_wall"] == 1_700_000_000.25 and header["port"] == "/dev/ttyUSB0"
@@ -88,8 +90,8 @@ def test_malformed_record_keeps_what_came_before(tmp_path):
     _, it = read_recording(p)
     got = []
     with pytest.raises(UserError, match=r"bad\.rec:6: malformed record"):
-        for rec in it:
-            got.append(rec)
+        for t, raw, _ in it:
+            got.append((t, raw))
     assert got == [(0.1, b"1.000"), (0.2, b"2.000\r")]
 
 
@@ -98,7 +100,7 @@ def test_malformed_variants(tmp_path, line):
     p = tmp_path / "m.rec"
     p.write_bytes(b"0\tok\n" + line.encode() + b"\n")
     _, it = read_recording(p)
-    assert next(it) == (0.0, b"ok")
+    assert next(it)[:2] == (0.0, b"ok")
     with pytest.raises(UserError, match=r"m\.rec:2:"):
         next(it)
 
@@ -107,7 +109,7 @@ def test_crlf_edited_file_still_reads(tmp_path):
     p = tmp_path / "w.rec"
     p.write_bytes(b"# saglog recording\r\n0.000000\t1.0\\x0d\r\n0.100000\t2.0\r\n")
     _, it = read_recording(p)
-    assert list(it) == [(0.0, b"1.0\r"), (0.1, b"2.0")]
+    assert [(t, raw) for t, raw, _ in it] == [(0.0, b"1.0\r"), (0.1, b"2.0")]
 
 
 def test_missing_file_is_a_user_error(tmp_path):
@@ -118,7 +120,7 @@ def test_missing_file_is_a_user_error(tmp_path):
 def test_plain_capture_at_a_rate(tmp_path):
     p = tmp_path / "cap.txt"
     p.write_bytes(b"1.000\r\n2.000\r\n\xff\xfe\r\n3.0" * 30000)  # blocks split mid-line and mid-CRLF
-    got = list(read_plain(p, 50.0))
+    got = [(t, raw) for t, raw, _ in read_plain(p, 50.0)]
     assert len(got) == 3 * 30000 + 1
     assert got[0] == (0.0, b"1.000\r") and got[2] == (2 / 50.0, b"\xff\xfe\r")
     assert got[3] == (3 / 50.0, b"3.01.000\r")  # the unterminated "3.0" runs into the next line
