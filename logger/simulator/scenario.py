@@ -32,7 +32,7 @@ SUFFIXES_IN = ("in", "inch", '"')
 class Scenario:
     """A session with the virtual indicator.  Lengths in mm, times in s.
 
-    See docs/notes-streams.md for the TOML keys that set each field.
+    See docs/streams.md for the TOML keys that set each field.
     """
 
     name: str
