@@ -38,8 +38,7 @@ def run_demo(out_dir: Path, live: bool = False, cues: bool = False) -> dict:
     server = PtyServer(run)
     view = LiveView(profile.unit) if live else PlainLog(profile.unit)
     duration_s = run.duration_s + 1.0  # real time: the seatings last as long as at the stand
-    with server:
-        server.start()
+    with server:  # starts serving; the scenario clock starts when the capture opens the device
         with view if live else contextlib.nullcontext():
             summary = capture(server.path, profile, settings, out_dir, view=view, cues=cues,
                               duration_s=duration_s, wait_s=5.0)

@@ -88,6 +88,8 @@ class SeatingDetector:
         self._v: list[float] = []
         self._centre = math.nan
         self._last_t = -math.inf
+        self._last_v = math.nan
+        self._repeats = 0  # readings equal to the one before: a continuous stream repeats, on-change never
         self._resting = False  # holding still at the spindle's stop
         self._ct: list[float] = []  # samples since the reading came roughly to rest (see _coarse)
         self._cv: list[float] = []
@@ -96,8 +98,13 @@ class SeatingDetector:
 
     # -- feeding --------------------------------------------------------
     def advance(self, t_s: float) -> None:
-        """Time has passed with no new reading: a held value may now count as seated."""
-        if self.state == SEATED or self._resting or not self._t:
+        """Time has passed with no new reading: a held value may now count as seated.
+
+        Only for streams that send on change.  A stream that repeats values
+        (it sends continuously) holds only by its samples: there, silence is
+        a delay in delivery (a busy computer, a slow link), not a held value.
+        """
+        if self.state == SEATED or self._resting or not self._t or self._repeats >= 3:
             return
         held_s = t_s - self._t[0]
         if held_s >= self.s.settle_s:
@@ -108,6 +115,11 @@ class SeatingDetector:
     def feed(self, t_s: float, value_mm: float) -> Seating | None:
         """One reading; returns a Seating when this reading ended one.  (The hot path: kept lean.)"""
         self._last_t = t_s
+        if value_mm == self._last_v:
+            self._repeats += 1
+        self._last_v = value_mm
+        if self.state != SEATED:
+            self.advance(t_s)
         if self.state == SEATED:
             if -self._lift <= value_mm - self._centre <= self._lift:
                 self._t.append(t_s)
@@ -121,9 +133,6 @@ class SeatingDetector:
             self._most_out = self.sign * value_mm
             self._restart(t_s, value_mm)
             return finished
-        self.advance(t_s)
-        if self.state == SEATED:
-            return self.feed(t_s, value_mm)
         oriented = self.sign * value_mm
         if oriented < self._most_out:
             self._most_out = oriented

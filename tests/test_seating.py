@@ -116,3 +116,15 @@ def test_robust_centre_against_numpy_weighted_average():
     assert n == keep.sum()
     assert math.isclose(mean, np.average(v[keep], weights=w[keep]), rel_tol=1e-12)
     assert math.isclose(spread, math.sqrt(np.cov(v[keep], aweights=w[keep], ddof=0)), rel_tol=1e-9)
+
+
+def test_a_delivery_stall_in_a_continuous_stream_is_not_a_seating():
+    # A continuous stream (it repeats values) that stalls for 0.6 s mid-approach (a busy
+    # computer): the value before the stall must not count as held (common practice: at
+    # 10-100 Hz an indicator that goes quiet has not stopped moving).
+    samples = [(i * 0.02, -1.5) for i in range(50)]
+    samples += [(1.0 + i * 0.02, -1.5 + 0.1 * i) for i in range(5)]  # moving in...
+    samples += [(1.7 + i * 0.02, -1.0 + 0.1 * i) for i in range(10)]  # ...the stall, then on
+    samples += [(2.0 + i * 0.02, 0.0) for i in range(100)] + [(4.0 + i * 0.02, -1.5) for i in range(50)]
+    found = detect(samples, 5.0)
+    assert len(found) == 1 and abs(found[0].value_mm) < 1e-9

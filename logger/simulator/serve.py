@@ -56,6 +56,9 @@ class _Server(abc.ABC):
 
     # -- public
     def start(self) -> None:
+        """Start serving (once: a second call, e.g. after `with`, does nothing)."""
+        if self._thread is not None:
+            return
         self._thread = threading.Thread(target=self._main, name=type(self).__name__, daemon=True)
         self._thread.start()
 
