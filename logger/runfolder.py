@@ -53,16 +53,21 @@ iso_utc = IsoClock()
 _PLAIN_NUMBER = re.compile(r'[+-][ \t]*[0-9.,]*[ \t]*(mm|inch|in|")?[ \t]*(\\x0d)?', re.IGNORECASE)
 
 
-def csv_text(value: str) -> str:
-    """A free-text CSV field: quoted, and never a spreadsheet formula.
+def formula_safe(value: str) -> str:
+    """Free text that a spreadsheet will not run as a formula.
 
     Text that a spreadsheet would run as a formula (starting with = + - @,
     tab or CR) gets a leading apostrophe, the usual guard (the OWASP note on
     CSV injection, from memory); a plain signed number is left alone.
     """
     if value[:1] in ("=", "+", "-", "@", "\t", "\r") and not _PLAIN_NUMBER.fullmatch(value):
-        value = "'" + value
-    return '"' + value.replace('"', '""') + '"'
+        return "'" + value
+    return value
+
+
+def csv_text(value: str) -> str:
+    """A free-text CSV field: quoted, and never a spreadsheet formula."""
+    return '"' + formula_safe(value).replace('"', '""') + '"'
 
 
 def _num(x, fmt="{:.6f}") -> str:
