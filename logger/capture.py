@@ -117,14 +117,30 @@ def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | P
             if surface_seatings is not None and pipeline.summary.get("seatings_surface", 0) >= surface_seatings:
                 break
     finally:
-        end = time.monotonic() - t0
-        for raw in splitter.flush():
-            _take(rec, pipeline, end, raw)
-        rec.comment(f"end {end:.6f}")
-        rec.close()
-        summary = pipeline.finish(end)
-        src.close()
-        view.refresh(summary)
+        summary = _wind_up(splitter, rec, pipeline, writer, src, time.monotonic() - t0)
+    view.refresh(summary)
+    return summary
+
+
+def _wind_up(splitter, rec, pipeline, writer, src, end: float) -> dict:
+    """Close everything, even after a write error (disk full, read-only): every step is tried, the first error raised."""
+    first = None
+
+    def attempt(step):
+        nonlocal first
+        try:
+            return step()
+        except UserError as exc:
+            first = first or exc
+
+    attempt(lambda: [_take(rec, pipeline, end, raw) for raw in splitter.flush()])
+    attempt(lambda: rec.comment(f"end {end:.6f}"))
+    attempt(rec.close)
+    summary = attempt(lambda: pipeline.finish(end))
+    writer.close()
+    src.close()
+    if first is not None:
+        raise first
     return summary
 
 

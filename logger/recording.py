@@ -49,6 +49,7 @@ class RecWriter:
             self._f = open(self.path, "w", encoding="ascii", newline="\n", buffering=1 << 16)
         except OSError as exc:
             raise UserError(f"{self.path}: cannot write the recording ({exc.strerror or exc})") from None
+        self._error = UserError(f"{self.path}: the recording is already closed")
         start = time.strftime("%Y-%m-%dT%H:%M:%S", time.gmtime(start_wall)) + f".{int(start_wall % 1 * 1e6):06d}Z"
         lines = ["# saglog recording", f"# saglog_version: {__version__}", f"# start_utc: {start}",
                  f"# start_epoch_s: {start_wall:.6f}"]
@@ -58,8 +59,19 @@ class RecWriter:
     def _write(self, text: str) -> None:
         try:
             self._f.write(text)
-        except OSError as exc:
-            raise UserError(f"{self.path}: cannot write the recording ({exc.strerror or exc})") from None
+        except (OSError, ValueError) as exc:  # ValueError: closed after an earlier failure
+            self._fail(exc)
+
+    def _fail(self, exc: Exception):
+        """A write failed (disk full, read-only): close at once, keep what is on disk, one-line error."""
+        if not isinstance(exc, OSError):
+            raise self._error
+        self._error = UserError(f"{self.path}: cannot write the recording ({exc.strerror or exc})")
+        try:
+            self._f.close()  # the unwritten buffer fails again; the file is closed all the same
+        except OSError:
+            pass
+        raise self._error from None
 
     def write(self, t_s: float, raw: bytes) -> None:
         self._write(f"{t_s:.6f}\t{escape(raw)}\n")
@@ -75,15 +87,13 @@ class RecWriter:
         try:
             self._f.flush()
             os.fsync(self._f.fileno())
-        except OSError as exc:
-            raise UserError(f"{self.path}: cannot write the recording ({exc.strerror or exc})") from None
+        except (OSError, ValueError) as exc:
+            self._fail(exc)
 
     def close(self) -> None:
         if not self._f.closed:
-            try:
-                self.flush()
-            finally:
-                self._f.close()
+            self.flush()
+            self._f.close()
 
 
 def is_recording(path: str | Path) -> bool:

@@ -366,12 +366,12 @@ def one_line_error(stderr: str, *words):
 
 def test_disk_full_during_capture_gives_one_line_and_keeps_what_was_written(tmp_path):
     stream = session(60, rate_hz=RATE_HZ, seed=17, **FAST)
-    with tmpfs(tmp_path / "small", "160k") as fs:
+    with tmpfs(tmp_path / "small", "96k") as fs:
         dev = PtyDevice(tmp_path / "tty")
         out = fs / "run"
         proc = start_capture(dev.link, out)
         wait_opened(proc, out)
-        pacer = Pacer(dev, stream.lines, 4 * RATE_HZ)  # fills the 160 kB disk in a few seconds
+        pacer = Pacer(dev, stream.lines, RATE_HZ)  # fills the 96 kB disk in a few seconds
         pacer.start()
         try:
             rc = proc.wait(60)
@@ -386,6 +386,7 @@ def test_disk_full_during_capture_gives_one_line_and_keeps_what_was_written(tmp_
         assert total >= 1
         rec = (out / "stream.rec").read_text()
         assert rec.startswith("# saglog recording") and rec.count("\n") > 100
+        assert not list(out.glob(".*.tmp"))  # no half-written temporary left taking space
 
 
 def test_read_only_folder_mid_capture_gives_one_line_and_keeps_what_was_written(tmp_path):
