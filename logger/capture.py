@@ -81,9 +81,10 @@ def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | P
     t0 = time.monotonic()
     start_wall = time.time()
     settings.source = src.settings()
-    rec = RecWriter(out / "stream.rec", start_wall, {**src.settings(), "profile": profile.source})
     writer = RunWriter(out, start_wall, settings.as_dict(profile))
     pipeline = Pipeline(profile, settings, writer, start_wall, Fanout(view, Cues(enabled=cues)))
+    # last: once stream.rec exists, the folder is a complete (empty) run
+    rec = RecWriter(out / "stream.rec", start_wall, {**src.settings(), "profile": profile.source})
     splitter = LineSplitter()
     last_rec_flush = t0
     view.state_changed("lifted")
