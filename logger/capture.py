@@ -79,7 +79,7 @@ def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | P
     view.device = port
     _open_with_wait(src, wait_s, stop, lambda: view.state_changed("waiting for device"))
     t0 = time.monotonic()
-    start_wall = time.time()
+    start_wall = round(time.time(), 6)
     settings.source = src.settings()
     writer = RunWriter(out, start_wall, settings.as_dict(profile))
     pipeline = Pipeline(profile, settings, writer, start_wall, Fanout(view, Cues(enabled=cues)))
@@ -93,18 +93,18 @@ def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | P
             try:
                 chunk = src.read_block()
             except DeviceGone:
-                gap_start = time.monotonic() - t0
+                gap_start = _since(t0)
                 for raw in splitter.flush():  # a half line before the cut is still a received line
                     _take(rec, pipeline, gap_start, raw)
                 view.state_changed("waiting for device")
                 view.refresh(pipeline.summary)
                 _reconnect(src, stop, view)
-                gap_end = time.monotonic() - t0
+                gap_end = _since(t0)
                 rec.comment(f"gap {gap_start:.6f} {gap_end:.6f}")
                 pipeline.gap(gap_start, gap_end)
                 view.state_changed("lifted")
                 continue
-            now = time.monotonic() - t0
+            now = _since(t0)
             if chunk:
                 for raw in splitter.feed(chunk):
                     _take(rec, pipeline, now, raw)
@@ -118,7 +118,7 @@ def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | P
             if surface_seatings is not None and pipeline.summary.get("seatings_surface", 0) >= surface_seatings:
                 break
     finally:
-        summary = _wind_up(splitter, rec, pipeline, writer, src, time.monotonic() - t0)
+        summary = _wind_up(splitter, rec, pipeline, writer, src, _since(t0))
     view.refresh(summary)
     return summary
 
@@ -143,6 +143,11 @@ def _wind_up(splitter, rec, pipeline, writer, src, end: float) -> dict:
     if first is not None:
         raise first
     return summary
+
+
+def _since(t0: float) -> float:
+    """Seconds since the start, to the microsecond the recording keeps: its replay sees the same times."""
+    return round(time.monotonic() - t0, 6)
 
 
 def _take(rec: RecWriter, pipeline: Pipeline, t_s: float, raw: bytes) -> None:
