@@ -389,28 +389,38 @@ def test_disk_full_during_capture_gives_one_line_and_keeps_what_was_written(tmp_
         assert not list(out.glob(".*.tmp"))  # no half-written temporary left taking space
 
 
+@contextmanager
+def read_only_bind(path: Path):
+    """The folder made read-only under a running program: a read-only bind mount over itself (mount(8))."""
+    subprocess.run(["mount", "--bind", str(path), str(path)], check=True)
+    try:
+        subprocess.run(["mount", "-o", "remount,bind,ro", str(path)], check=True)
+        yield path
+    finally:
+        subprocess.run(["umount", "-l", str(path)], check=True)
+
+
 def test_read_only_folder_mid_capture_gives_one_line_and_keeps_what_was_written(tmp_path):
     stream = session(12, rate_hz=RATE_HZ, seed=19, **FAST)
-    with tmpfs(tmp_path / "disk", "8m") as fs:
-        dev = PtyDevice(tmp_path / "tty")
-        out = fs / "run"
-        proc = start_capture(dev.link, out)
-        wait_opened(proc, out)
-        pacer = Pacer(dev, stream.lines, RATE_HZ)
-        pacer.start()
-        try:
-            wait_for(lambda: (out / "summary.json").exists() and summary_of(out)["seatings_total"] >= 2,
-                     20, "two seatings")
-            before = summary_of(out)["seatings_total"]
-            subprocess.run(["mount", "-o", "remount,ro", str(fs)], check=True)
+    dev = PtyDevice(tmp_path / "tty")
+    out = tmp_path / "run"
+    proc = start_capture(dev.link, out)
+    wait_opened(proc, out)
+    pacer = Pacer(dev, stream.lines, RATE_HZ)
+    pacer.start()
+    try:
+        wait_for(lambda: summary_of(out)["seatings_total"] >= 2, 20, "two seatings")
+        before = summary_of(out)["seatings_total"]
+        with read_only_bind(out):
             rc = proc.wait(30)
-        finally:
-            pacer.stop()
-            pacer.join(5)
-            dev.close()
-        assert rc == 2
-        one_line_error(proc.stderr.read(), "Read-only file system")
-        assert check_after_kill(out) >= before
+            stderr = proc.stderr.read()
+    finally:
+        pacer.stop()
+        pacer.join(5)
+        dev.close()
+    assert rc == 2
+    one_line_error(stderr, "Read-only file system")
+    assert check_after_kill(out) >= before
 
 
 def test_read_only_folder_from_the_start(tmp_path):
