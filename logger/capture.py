@@ -87,9 +87,10 @@ def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | P
 
     deadline = None if duration_s is None else t0 + duration_s
     settings.source = src.settings()
-    rec = RecWriter(out / "stream.rec", start_wall, {**src.settings(), "profile": profile.source})
     writer = RunWriter(out, start_wall, settings.as_dict(profile))
     pipeline = Pipeline(profile, settings, writer, start_wall, Fanout(view, Cues(enabled=cues)))
+    # last: once stream.rec exists, the folder is a complete (empty) run
+    rec = RecWriter(out / "stream.rec", start_wall, {**src.settings(), "profile": profile.source})
     splitter = LineSplitter()
     last_rec_flush = t0
     view.state_changed("lifted")
@@ -125,14 +126,30 @@ def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | P
             if surface_seatings is not None and pipeline.summary.get("seatings_surface", 0) >= surface_seatings:
                 break
     finally:
-        end = clock()
-        for raw in splitter.flush():
-            _take(rec, pipeline, end, raw)
-        rec.comment(end_comment(end))
-        rec.close()
-        summary = pipeline.finish(end)
-        src.close()
-        view.refresh(summary)
+        summary = _wind_up(splitter, rec, pipeline, writer, src, clock())
+    view.refresh(summary)
+    return summary
+
+
+def _wind_up(splitter, rec, pipeline, writer, src, end: float) -> dict:
+    """Close everything, even after a write error (disk full, read-only): every step is tried, the first error raised."""
+    first = None
+
+    def attempt(step):
+        nonlocal first
+        try:
+            return step()
+        except UserError as exc:
+            first = first or exc
+
+    attempt(lambda: [_take(rec, pipeline, end, raw) for raw in splitter.flush()])
+    attempt(lambda: rec.comment(end_comment(end)))
+    attempt(rec.close)
+    summary = attempt(lambda: pipeline.finish(end))
+    writer.close()
+    src.close()
+    if first is not None:
+        raise first
     return summary
 
 

@@ -73,6 +73,8 @@ class LineSplitter:
         return self._tail
 
     def feed(self, chunk: bytes) -> list[bytes]:
+        if not chunk:  # an empty read (a timeout) must not forget a CR waiting for its LF
+            return []
         self.bytes_in += len(chunk)
         if self._skip_lf and chunk[:1] == b"\n":
             chunk = chunk[1:]

@@ -29,6 +29,7 @@ from scipy import stats
 
 from . import plotstyle as ps
 from .errors import UserError
+from .runfolder import formula_safe
 from .runs import load_runs, runs_table
 from .units import UNITS, from_mm, to_mm
 
@@ -179,6 +180,8 @@ def write_history(run_dirs, out_png, target_radius: float | None = None, toleran
     fig = make_history_figure(table, target_mm, band_mm, unit, trends, band_label)
     png = ps.save_figure(fig, out_png)
     csv_out = table.assign(started=table["started"].map(lambda t: "" if pd.isna(t) else t.isoformat()))
+    for col in ("label", "kind", "status", "surface", "path"):  # free text: never a spreadsheet formula
+        csv_out[col] = csv_out[col].map(lambda x: x if not isinstance(x, str) else formula_safe(x))
     csv_path = ps.write_text(out_png.with_suffix(".csv"), csv_out.to_csv(index=False, lineterminator="\n"))
     return png, csv_path, trends
 

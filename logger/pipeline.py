@@ -71,6 +71,8 @@ class Pipeline:
         # nobody watching: it analyses once at the end, which gives the same
         # result (the analysis depends only on the list of seatings).
         self.live = live
+        if live:  # a complete run folder from the first moment: a kill -9 leaves readable files
+            self._publish()
 
     # -- feeding --------------------------------------------------------
     def line(self, t_s: float, raw: bytes, text: str | None = None, t_wall: float | None = None) -> None:

@@ -97,6 +97,7 @@ class RecWriter:
         except OSError as exc:
             raise UserError(f"{self.path}: cannot write recording ({exc.strerror or exc})") from None
         self.records = 0
+        self._error = UserError(f"{self.path}: the recording is already closed")
         self._f.write(f"{MAGIC}\n# start_utc: {_iso_utc(start_wall)}\n")
         items = dict(header or {})
         items.setdefault("saglog_version", __version__)
@@ -106,9 +107,19 @@ class RecWriter:
     def _write(self, text: str) -> None:
         try:
             self._f.write(text)
-        except OSError as exc:
-            raise UserError(f"{self.path}: cannot write recording ({exc.strerror or exc}); "
-                            "what was written before is kept") from None
+        except (OSError, ValueError) as exc:  # ValueError: closed after an earlier failure
+            self._fail(exc)
+
+    def _fail(self, exc: Exception):
+        """A write failed (disk full, read-only): close at once, keep what is on disk, one-line error."""
+        if isinstance(exc, OSError):
+            self._error = UserError(f"{self.path}: cannot write the recording ({exc.strerror or exc}); "
+                                    "what was written before is kept")
+            try:
+                self._f.close()  # the unwritten buffer fails again; the file is closed all the same
+            except OSError:
+                pass
+        raise self._error from None
 
     def write(self, t_s: float, raw: bytes) -> None:
         self.write_text(t_s, escape(raw))
@@ -129,9 +140,8 @@ class RecWriter:
         try:
             self._f.flush()
             os.fsync(self._f.fileno())
-        except OSError as exc:
-            raise UserError(f"{self.path}: cannot write recording ({exc.strerror or exc}); "
-                            "what was written before is kept") from None
+        except (OSError, ValueError) as exc:
+            self._fail(exc)
 
     def close(self) -> None:
         if not self._f.closed:

@@ -53,16 +53,21 @@ iso_utc = IsoClock()
 _PLAIN_NUMBER = re.compile(r'[+-][ \t]*[0-9.,]*[ \t]*(mm|inch|in|")?[ \t]*(\\x0d)?', re.IGNORECASE)
 
 
-def csv_text(value: str) -> str:
-    """A free-text CSV field: quoted, and never a spreadsheet formula.
+def formula_safe(value: str) -> str:
+    """Free text that a spreadsheet will not run as a formula.
 
     Text that a spreadsheet would run as a formula (starting with = + - @,
     tab or CR) gets a leading apostrophe, the usual guard (the OWASP note on
     CSV injection, from memory); a plain signed number is left alone.
     """
     if value[:1] in ("=", "+", "-", "@", "\t", "\r") and not _PLAIN_NUMBER.fullmatch(value):
-        value = "'" + value
-    return '"' + value.replace('"', '""') + '"'
+        return "'" + value
+    return value
+
+
+def csv_text(value: str) -> str:
+    """A free-text CSV field: quoted, and never a spreadsheet formula."""
+    return '"' + formula_safe(value).replace('"', '""') + '"'
 
 
 def _num(x, fmt="{:.6f}") -> str:
@@ -83,6 +88,10 @@ def write_atomic(path: Path, text: str) -> None:
         finally:
             os.close(dir_fd)
     except OSError as exc:
+        try:
+            tmp.unlink(missing_ok=True)  # no half-written temporary left behind on a full disk
+        except OSError:
+            pass
         raise UserError(f"{path}: cannot write ({exc.strerror or exc}); earlier files in {path.parent} are kept") from None
 
 
@@ -123,6 +132,7 @@ class RunWriter:
         self.start_wall = start_wall
         write_atomic(self.dir / "settings.json", json_text(settings))
         self._samples = self._open("samples.csv")
+        self._error = UserError(f"{self.dir / 'samples.csv'}: already closed")
         self._samples.write(",".join(SAMPLE_COLUMNS) + "\n")
         self._last_flush = time.monotonic()
         self._closed = False
@@ -144,8 +154,20 @@ class RunWriter:
             row = f'{iso_utc(t_wall)},{t_s:.6f},"{text}",{value_mm:.6f},{state},{s}\n'
         try:
             self._samples.write(row)
-        except OSError as exc:
-            raise UserError(f"{self.dir / 'samples.csv'}: cannot write ({exc.strerror or exc})") from None
+        except (OSError, ValueError) as exc:  # ValueError: closed after an earlier failure
+            self._fail(exc)
+
+    def _fail(self, exc: Exception):
+        """samples.csv cannot be written (disk full, read-only): close it at once, keep what is on disk."""
+        if not isinstance(exc, OSError):
+            raise self._error
+        self._error = UserError(f"{self.dir / 'samples.csv'}: cannot write ({exc.strerror or exc})")
+        self._closed = True
+        try:
+            self._samples.close()  # the unwritten buffer fails again; the file is closed all the same
+        except OSError:
+            pass
+        raise self._error from None
 
     def maybe_flush(self) -> None:
         now = time.monotonic()
@@ -156,8 +178,8 @@ class RunWriter:
     def flush(self) -> None:
         try:
             self._samples.flush()
-        except OSError as exc:
-            raise UserError(f"{self.dir / 'samples.csv'}: cannot write ({exc.strerror or exc})") from None
+        except (OSError, ValueError) as exc:
+            self._fail(exc)
 
     def seatings(self, decisions) -> None:
         rows = [",".join(SEATING_COLUMNS)]
@@ -182,4 +204,7 @@ class RunWriter:
                 os.fsync(self._samples.fileno())
             except OSError:
                 pass  # the error was reported when it happened; what is on disk stays
-            self._samples.close()
+            try:
+                self._samples.close()
+            except OSError:
+                pass

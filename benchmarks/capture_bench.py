@@ -1,0 +1,195 @@
+"""Live capture over a real pty: lossless line rate, CPU cost at 100 lines/s, seating-to-summary latency.
+
+Each capture is the real command (`python -m logger capture`) in its own
+process, fed by `feeder.Pacer` from this one.  A rate counts as held when
+every line sent is in stream.rec and samples.csv and the feeder kept its
+pace (a pty never drops bytes: a reader that falls behind makes the
+writer block, so falling behind shows as lost pace, not lost lines).  The
+raw pyserial copy loop (benchmarks.rawcopy) runs over the same kind of pty
+at the same rates, as the ceiling for any reader in Python.
+"""
+
+from __future__ import annotations
+
+import fcntl
+import json
+import os
+import signal
+import subprocess
+import sys
+import termios
+import time
+from pathlib import Path
+
+import psutil
+
+from .feeder import Pacer, PtyDevice, session
+
+ROOT = Path(__file__).resolve().parents[1]
+PROFILE = ROOT / "logger" / "profiles" / "example-three-ball.toml"
+RATES = (1_000, 2_000, 5_000, 10_000, 20_000, 50_000)
+RATE_S = 3.0
+CPU_RATE, CPU_S = 100.0, 20.0
+LATENCY_SEATINGS = 10
+ENV = dict(os.environ, PYTHONPATH=str(ROOT) + os.pathsep + os.environ.get("PYTHONPATH", ""))
+
+
+def _wait(cond, timeout_s, what):
+    deadline = time.monotonic() + timeout_s
+    while not cond():
+        if time.monotonic() > deadline:
+            raise RuntimeError(f"benchmark: timed out waiting for {what}")
+        time.sleep(0.002)
+
+
+def _queued(dev: PtyDevice) -> int:
+    """Bytes written but not yet read by the program on the other end (FIONREAD on the slave)."""
+    return int.from_bytes(fcntl.ioctl(dev._slave, termios.FIONREAD, b"\0\0\0\0"), "little")
+
+
+def start_capture(dev: PtyDevice, out: Path, *extra) -> subprocess.Popen:
+    proc = subprocess.Popen([sys.executable, "-m", "logger", "capture", "--port", str(dev.link), "--out", str(out),
+                             "--profile", str(PROFILE), "--view", "plain", "--quiet", *map(str, extra)],
+                            env=ENV, cwd=ROOT, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
+    _wait(lambda: (out / "stream.rec").exists() or proc.poll() is not None, 60, "the capture to open the port")
+    if proc.poll() is not None:
+        raise RuntimeError(f"capture ended early: {proc.stderr.read()}")
+    return proc
+
+
+def stop(proc: subprocess.Popen) -> None:
+    proc.send_signal(signal.SIGTERM)
+    if proc.wait(60) != 0:
+        raise RuntimeError(f"capture failed: {proc.stderr.read()}")
+
+
+def count_records(out: Path) -> tuple[int, int]:
+    with open(out / "stream.rec") as f:
+        rec = sum(1 for line in f if line[:1] != "#")
+    with open(out / "samples.csv") as f:
+        samples = sum(1 for _ in f) - 1
+    return rec, samples
+
+
+def one_rate(tmp: Path, lines: list[bytes], rate: int, raw: bool) -> dict:
+    dev = PtyDevice(tmp / f"tty-{'raw' if raw else 'cap'}-{rate}")
+    out = tmp / f"cap-{rate}"
+    try:
+        if raw:
+            proc = subprocess.Popen([sys.executable, "-m", "benchmarks.rawcopy", str(dev.link)], env=ENV, cwd=ROOT,
+                                    stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+            assert proc.stdout.readline().strip() == "open"
+        else:
+            proc = start_capture(dev, out)
+        n = int(rate * RATE_S)
+        pacer = Pacer(dev, lines[:n], rate)
+        pacer.run()
+        _wait(lambda: _queued(dev) == 0 or proc.poll() is not None, 60, "the reader to drain the pty")
+        time.sleep(0.2)
+        if raw:
+            proc.send_signal(signal.SIGTERM)
+            received = int(proc.communicate(timeout=30)[0].split()[-1])
+            samples = received
+        else:
+            stop(proc)
+            received, samples = count_records(out)
+    finally:
+        dev.close()
+    kept_pace = pacer.elapsed_s <= RATE_S * 1.05 + 0.05
+    return dict(rate=rate, sent=pacer.sent, received=received, samples=samples, feeder_s=round(pacer.elapsed_s, 3),
+                held=received == pacer.sent == samples and kept_pace)
+
+
+def highest_held(results: list[dict]) -> int:
+    best = 0
+    for r in results:
+        if not r["held"]:
+            break
+        best = r["rate"]
+    return best
+
+
+def cpu_per_1000(tmp: Path) -> tuple[float, int]:
+    stream = session(int(CPU_S / 3) + 2, rate_hz=CPU_RATE, seed=3)
+    dev = PtyDevice(tmp / "tty-cpu")
+    out = tmp / "cap-cpu"
+    try:
+        proc = start_capture(dev, out)
+        ps = psutil.Process(proc.pid)
+        c0 = ps.cpu_times()
+        pacer = Pacer(dev, stream.lines[:int(CPU_RATE * CPU_S)], CPU_RATE)
+        pacer.run()
+        _wait(lambda: _queued(dev) == 0, 30, "the capture to drain the pty")
+        time.sleep(0.1)
+        c1 = ps.cpu_times()
+        stop(proc)
+    finally:
+        dev.close()
+    cpu_s = (c1.user + c1.system) - (c0.user + c0.system)
+    return cpu_s / pacer.sent * 1000, pacer.sent
+
+
+def latency(tmp: Path) -> list[float]:
+    """Seconds from writing the line that ends a seating (the lift) to summary.json counting it."""
+    stream = session(LATENCY_SEATINGS, rate_hz=100.0, seated_s=1.6, lifted_s=0.5, seed=5)
+    dev = PtyDevice(tmp / "tty-lat")
+    out = tmp / "cap-lat"
+    summary = out / "summary.json"
+
+    def seatings_total():
+        try:
+            return json.loads(summary.read_text()).get("seatings_total", 0)
+        except (OSError, ValueError):
+            return -1
+
+    delays = []
+    try:
+        proc = start_capture(dev, out)
+        start = 0
+        for k, lift in enumerate(stream.lift_at):
+            Pacer(dev, stream.lines[start:lift], 100.0).run()
+            time.sleep(0.01)
+            t = time.perf_counter()
+            dev.write(stream.lines[lift])
+            _wait(lambda: seatings_total() >= k + 1, 10, f"seating {k + 1} in summary.json")
+            delays.append(time.perf_counter() - t)
+            start = lift + 1
+        stop(proc)
+    finally:
+        dev.close()
+    return delays
+
+
+def run(tmp: Path) -> list[dict]:
+    lines = session(int(max(RATES) * RATE_S / 300) + 2, rate_hz=100.0, seed=1).lines
+    figures = []
+    table = {}
+    for raw in (False, True):
+        name = "raw pyserial copy loop" if raw else "capture"
+        results = []
+        for rate in RATES:
+            r = one_rate(tmp, lines, rate, raw)
+            results.append(r)
+            print(f"{name}: {rate} lines/s: sent {r['sent']}, received {r['received']}, "
+                  f"feeder {r['feeder_s']:.2f} s -> {'held' if r['held'] else 'NOT held'}", flush=True)
+        table[name] = results
+    cap, raw_best = highest_held(table["capture"]), highest_held(table["raw pyserial copy loop"])
+    figures.append(dict(name="capture: highest lossless rate", value=cap, unit="lines/s", detail=table["capture"],
+                        text=f"{cap:,} lines/s (of {', '.join(f'{r:,}' for r in RATES)})",
+                        goal="zero lost lines; up to 50,000 lines/s", met=cap == max(RATES)))
+    figures.append(dict(name="raw pyserial copy loop: highest rate", value=raw_best, unit="lines/s",
+                        detail=table["raw pyserial copy loop"], text=f"{raw_best:,} lines/s", goal="(reference)",
+                        met=True))
+    cpu, n = cpu_per_1000(tmp)
+    print(f"capture: CPU {cpu:.4f} s per 1000 lines at {CPU_RATE:g} lines/s ({n} lines)", flush=True)
+    figures.append(dict(name=f"capture CPU at {CPU_RATE:g} lines/s", value=round(cpu, 5), unit="CPU s per 1000 lines",
+                        text=f"{cpu:.4f} CPU s per 1000 lines ({cpu * CPU_RATE / 1000 * 100:.1f} % of one core)",
+                        goal="small (all day on a small computer)", met=cpu * CPU_RATE / 1000 < 0.05))
+    delays = sorted(latency(tmp))
+    med, worst = delays[len(delays) // 2], delays[-1]
+    print(f"capture: lift -> summary.json latency median {med * 1000:.1f} ms, max {worst * 1000:.1f} ms", flush=True)
+    figures.append(dict(name="lift -> summary.json latency", value={"median_s": round(med, 4), "max_s": round(worst, 4)},
+                        unit="s", text=f"median {med * 1000:.0f} ms, max {worst * 1000:.0f} ms "
+                                       f"({len(delays)} seatings)",
+                        goal="well under a second (the next seating)", met=worst < 0.5))
+    return figures
