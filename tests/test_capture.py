@@ -49,7 +49,8 @@ def seated_windows(run):
 
 
 def test_capture_equals_replay_and_survives_a_replug(tmp_path):
-    run = short_session(disconnect_at_s=6.2, disconnect_for_s=1.5)
+    # unplugged while the instrument is lifted, between the 4th and 5th seating
+    run = short_session(surface_seatings=5, lifted_s=1.0, disconnect_at_s=11.85, disconnect_for_s=0.6)
     profile = run.scenario.profile
     link = tmp_path / "ttyINDICATOR"  # a udev-style symlink the capture names; re-pointed on replug
     out = tmp_path / "cap"
