@@ -30,7 +30,7 @@ MAGIC = "# saglog recording"
 _NEEDS_ESCAPE = re.compile(rb"[^\x20-\x5b\x5d-\x7e]")  # printable ASCII except the backslash
 _ESCAPE_SEQ = re.compile(rb"\\x([0-9a-f]{2})")
 _BAD_TEXT = re.compile(rb"[^\x20-\x7e]")
-_BAD_BLOCK = re.compile(rb"[^\x20-\x7e\n]")
+_BAD_BLOCK = re.compile(rb"[^\x20-\x7e\n\t]")  # the TAB after each time is expected
 _CR = "\\x0d"
 _CR_B = b"\\x0d"
 _BLOCK = 1 << 16
@@ -258,10 +258,11 @@ def _records(p: Path, f, first: bytes | None, lineno: int, on_comment) -> Iterat
                     raise UserError(f"{p}:{lineno}: malformed record (expected 'seconds<TAB>line')") from None
                 if not tab or t_s - t_s != 0:  # no TAB, or nan/inf
                     raise UserError(f"{p}:{lineno}: malformed record (expected 'seconds<TAB>line')")
-                if clean and 0x5C not in field:
+                fast = clean and 0x09 not in field  # a raw TAB inside the line goes the careful way
+                if fast and 0x5C not in field:
                     yield t_s, field, field.decode("ascii")
                     continue
-                if clean and field[-4:] == _CR_B and field.count(0x5C) == 1:
+                if fast and field[-4:] == _CR_B and field.count(0x5C) == 1:
                     yield t_s, field[:-4] + b"\r", field.decode("ascii")
                     continue
                 if not clean and field[-1:] == b"\r":

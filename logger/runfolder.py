@@ -132,6 +132,7 @@ class RunWriter:
         self.start_wall = start_wall
         write_atomic(self.dir / "settings.json", json_text(settings))
         self._samples = self._open("samples.csv")
+        self._rows: list[str] = []
         self._error = UserError(f"{self.dir / 'samples.csv'}: already closed")
         self._samples.write(",".join(SAMPLE_COLUMNS) + "\n")
         self._last_flush = time.monotonic()
@@ -152,8 +153,16 @@ class RunWriter:
             if '"' in text:
                 text = text.replace('"', '""')
             row = f'{iso_utc(t_wall)},{t_s:.6f},"{text}",{value_mm:.6f},{state},{s}\n'
+        rows = self._rows
+        rows.append(row)
+        if len(rows) >= 4096:
+            self._write_rows()
+
+    def _write_rows(self) -> None:
+        """Rows are gathered and written in blocks: one write call per few thousand lines."""
+        text, self._rows = "".join(self._rows), []
         try:
-            self._samples.write(row)
+            self._samples.write(text)
         except (OSError, ValueError) as exc:  # ValueError: closed after an earlier failure
             self._fail(exc)
 
@@ -176,6 +185,7 @@ class RunWriter:
             self._last_flush = now
 
     def flush(self) -> None:
+        self._write_rows()
         try:
             self._samples.flush()
         except (OSError, ValueError) as exc:
@@ -200,10 +210,10 @@ class RunWriter:
         if not self._closed:
             self._closed = True
             try:
-                self._samples.flush()
+                self.flush()  # the last rows; a failure here is reported like any other
                 os.fsync(self._samples.fileno())
-            except OSError:
-                pass  # the error was reported when it happened; what is on disk stays
+            except (OSError, ValueError):
+                pass  # closed after an earlier, reported failure; what is on disk stays
             try:
                 self._samples.close()
             except OSError:

@@ -203,6 +203,7 @@ class SeatingDetector:
         self._v = v[:1] + ((rest_v[:m:2] + rest_v[1:m:2]) / 2).tolist() + rest_v[m:].tolist()
 
     def _hold_reached(self) -> None:
+        self._ct, self._cv = [], []  # a hold, either way: the rough-rest watch starts afresh after it
         held = float(np.mean(self._v))
         if self.sign * held - self._most_out < self.s.lift_mm:
             # reached by running out (or nothing seen before it): the spindle at its stop
