@@ -110,7 +110,8 @@ class SeatingDetector:
         if held_s >= self.s.settle_s:
             self._hold_reached()
         elif held_s >= 0.25 * self.s.settle_s and t_s - self._t[-1] >= 0.25 * self.s.settle_s:
-            self.state = SETTLING  # an on-change stream gone quiet: the value is holding
+            # an on-change stream gone quiet: the value is holding (at the stop: still lifted)
+            self.state = SETTLING if self.sign * self._v[0] - self._most_out >= self._lift else LIFTED
 
     def feed(self, t_s: float, value_mm: float) -> Seating | None:
         """One reading; returns a Seating when this reading ended one.  (The hot path: kept lean.)"""
@@ -139,7 +140,8 @@ class SeatingDetector:
         if self._t and -self._band <= value_mm - self._v[0] <= self._band:
             if not self._resting:
                 self._append(t_s, value_mm)
-                self.state = SETTLING
+                # near the stop it is the spindle running out, not a placement settling
+                self.state = SETTLING if oriented - self._most_out >= self._lift else LIFTED
                 if t_s - self._t[0] >= self.s.settle_s:
                     self._hold_reached()
         else:
