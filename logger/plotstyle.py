@@ -10,15 +10,13 @@ through Agg and lets tests inspect the artists directly.
 
 from __future__ import annotations
 
-import contextlib
-import os
-import tempfile
+import io
 from pathlib import Path
 
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
-from .errors import UserError
+from .runfolder import write_atomic
 
 # Okabe-Ito palette: M. Okabe and K. Ito, "Color Universal Design (CUD): how to make
 # figures and presentations that are friendly to colorblind people" (2002/2008).
@@ -61,28 +59,13 @@ def new_figure(width_in: float, height_in: float) -> Figure:
 
 def save_figure(fig: Figure, path) -> Path:
     """Write a PNG atomically: a reader never sees half a file, a crash leaves the old one."""
-    path = Path(path)
-    return _atomic(path, lambda fh: fig.savefig(fh, format="png"), binary=True)
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png")
+    write_atomic(Path(path), buf.getvalue())
+    return Path(path)
 
 
 def write_text(path, text: str) -> Path:
     """Write a text file atomically (UTF-8)."""
-    return _atomic(Path(path), lambda fh: fh.write(text), binary=False)
-
-
-def _atomic(path: Path, write, binary: bool) -> Path:
-    try:
-        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", dir=path.parent)
-    except OSError as exc:
-        raise UserError(f"{path}: cannot write: {exc.strerror or exc}") from None
-    try:
-        with os.fdopen(fd, "wb" if binary else "w", **({} if binary else {"encoding": "utf-8", "newline": "\n"})) as fh:
-            write(fh)
-        os.replace(tmp, path)
-    except BaseException as exc:
-        with contextlib.suppress(OSError):
-            os.unlink(tmp)
-        if isinstance(exc, OSError):
-            raise UserError(f"{path}: cannot write: {exc.strerror or exc}") from None
-        raise
-    return path
+    write_atomic(Path(path), text)
+    return Path(path)

@@ -74,11 +74,13 @@ def _num(x, fmt="{:.6f}") -> str:
     return "" if x is None or (isinstance(x, float) and not math.isfinite(x)) else fmt.format(x)
 
 
-def write_atomic(path: Path, text: str) -> None:
+def write_atomic(path: Path, data: str | bytes) -> None:
+    """Replace `path` with `data` (text as UTF-8) so that a reader or a crash never sees half a file."""
+    path = Path(path)
     tmp = path.with_name(f".{path.name}.tmp")
     try:
-        with open(tmp, "w", encoding="utf-8", newline="") as f:
-            f.write(text)
+        with open(tmp, "wb") as f:
+            f.write(data.encode("utf-8") if isinstance(data, str) else data)
             f.flush()
             os.fsync(f.fileno())
         os.replace(tmp, path)
