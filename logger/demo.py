@@ -9,6 +9,7 @@ and the commands to try next.
 from __future__ import annotations
 
 import contextlib
+import shutil
 import sys
 import time
 from pathlib import Path
@@ -64,9 +65,24 @@ def demo_cmd(out_dir, view):
     for line in result_lines(summary):
         click.echo(line)
     click.echo(f"run folder: {out}")
-    profile = "logger/profiles/example-three-ball.toml"
     click.echo("\nnext, try:")
-    click.echo(f"  saglog report {out}                  # report.png and report.md")
-    click.echo(f"  saglog replay {out}/stream.rec --profile {profile} --out {out}-grubbs --rejection grubbs")
-    click.echo(f"  saglog plan --profile {profile} --diameter 150 --focal-ratio 8")
-    click.echo("  saglog simulate --pty                 # a virtual indicator for your own capture")
+    for cmd, why in next_commands(out):
+        click.echo(f"  {cmd}" + (f"\n      ({why})" if why else ""))
+
+
+def next_commands(out: Path) -> list[tuple[str, str]]:
+    """What to try after the demo, spelt as this user can run it (`.venv/bin/saglog` after `make demo`)."""
+    argv0 = Path(sys.argv[0])
+    prog = str(argv0) if argv0.name == "saglog" and not shutil.which("saglog") else "saglog"
+    profile = Path(__file__).resolve().parent / "profiles" / "example-three-ball.toml"
+    try:
+        profile = profile.relative_to(Path.cwd())
+    except ValueError:
+        pass
+    return [
+        (f"{prog} report {out}", "draws report.png and writes report.md in the run folder"),
+        (f"{prog} replay {out}/stream.rec --profile {profile} --out {out}-grubbs --rejection grubbs",
+         "the same recording analysed again with Grubbs' test"),
+        (f"{prog} plan --profile {profile} --diameter 150 --focal-ratio 8", "what to grind for f/8"),
+        (f"{prog} simulate --pty", "a virtual indicator to capture from in another terminal"),
+    ]

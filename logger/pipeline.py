@@ -62,6 +62,9 @@ class Pipeline:
         self._wants_readings = type(self.listener).reading is not Listener.reading
         self.decoder = Decoder(profile.indicator.unit)
         self.detector = SeatingDetector(settings.detector, profile.indicator.sign)
+        # bound once: `line` runs for every received line
+        self._value, self._feed = self.decoder.value, self.detector.feed
+        self._sample = writer.sample if writer is not None else None
         self.seatings: list[Seating] = []
         self.gaps: list[dict] = []
         self.last_t_s = 0.0
@@ -76,23 +79,23 @@ class Pipeline:
 
     # -- feeding --------------------------------------------------------
     def line(self, t_s: float, raw: bytes, text: str | None = None, t_wall: float | None = None) -> None:
-        """One received line; `text` is its escaped form if the caller has it already."""
+        """One received line; `text` is its escaped form if the caller has it already.  (The hot path.)"""
         if t_wall is None:
             t_wall = self.start_wall + t_s
         self.last_t_s = t_s
-        value_mm, unit, bad = self.decoder.value(raw)
+        value_mm, unit, bad = self._value(raw)
         if value_mm is None:
             state, index = BAD, None
         else:
+            done = self._feed(t_s, value_mm)
             detector = self.detector
-            done = detector.feed(t_s, value_mm)
             state, index = detector.state, detector.current_index
             if done is not None:
                 self._seating(done)
             if state != self._state:
                 self._notify_state()
-        if self.writer is not None:
-            self.writer.sample(t_s, t_wall, escape(raw) if text is None else text, value_mm, state, index)
+        if self._sample is not None:
+            self._sample(t_s, t_wall, escape(raw) if text is None else text, value_mm, state, index)
         if self._wants_readings:
             self.listener.reading(Reading(t_s, t_wall, raw, value_mm, unit, bad), state)
 

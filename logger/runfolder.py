@@ -38,11 +38,13 @@ class IsoClock:
         self._prefix = ""
 
     def __call__(self, epoch_s: float) -> str:
-        sec = math.floor(epoch_s)
+        sec = int(epoch_s) if epoch_s >= 0 else math.floor(epoch_s)
         if sec != self._sec:
             self._sec = sec
             self._prefix = time.strftime("%Y-%m-%dT%H:%M:%S", time.gmtime(sec))
-        micros = min(int((epoch_s - sec) * 1e6 + 0.5), 999999)
+        micros = int((epoch_s - sec) * 1e6 + 0.5)
+        if micros > 999999:
+            micros = 999999
         return f"{self._prefix}.{micros:06d}Z"
 
 
