@@ -32,7 +32,8 @@ from .runfolder import RunWriter, prepare_folder
 from .source import SerialSource
 
 EXIT_NO_DEVICE = 3
-REC_FLUSH_S = 0.5
+REC_FLUSH_S = 0.5  # stream.rec to disk at least this often (samples.csv: runfolder.FLUSH_EVERY_S)
+VIEW_EVERY_S = 0.2  # the live panel is redrawn about five times a second
 
 
 class NeverAppeared(Exception):
@@ -92,7 +93,7 @@ def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | P
     # last: once stream.rec exists, the folder is a complete (empty) run
     rec = RecWriter(out / "stream.rec", start_wall, {**src.settings(), "profile": profile.source})
     splitter = LineSplitter()
-    last_rec_flush = t0
+    last_rec_flush = last_view = t0
     view.state_changed("lifted")
     try:
         while not stop.requested:
@@ -117,10 +118,13 @@ def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | P
                 for raw in splitter.feed(chunk):
                     _take(rec, pipeline, now, raw)
             pipeline.tick(now)
-            if now - (last_rec_flush - t0) >= REC_FLUSH_S:
+            mono = time.monotonic()
+            if mono - last_rec_flush >= REC_FLUSH_S:
                 rec.flush()
-                last_rec_flush = time.monotonic()
+                last_rec_flush = mono
+            if mono - last_view >= VIEW_EVERY_S:
                 view.refresh(pipeline.summary)
+                last_view = mono
             if duration_s is not None and now >= duration_s:
                 break
             if surface_seatings is not None and pipeline.summary.get("seatings_surface", 0) >= surface_seatings:
