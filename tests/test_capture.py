@@ -134,3 +134,25 @@ def test_bad_port_url_is_a_user_error(tmp_path):
     proc = _capture_process("socket://", tmp_path / "o")
     stdout, stderr = proc.communicate(timeout=30)
     assert proc.returncode == 2 and stderr.count("\n") == 1 and "Traceback" not in stderr
+
+
+def test_an_indicator_that_answers_only_when_asked(tmp_path):
+    # a polled indicator (common practice for some models): nothing comes unless the logger asks
+    run = short_session(rate_hz=100.0, poll="?\\r")
+    profile = run.scenario.profile
+    with PtyServer(run) as server:
+        summary = capture(server.path, profile, settings_for(profile), tmp_path / "p", cues=False,
+                          view=PlainLog(profile.unit, io.StringIO()), duration_s=run.duration_s + 1.0, wait_s=5,
+                          poll_command=b"?\r", poll_interval_s=0.05)
+    c = run.truth["counts"]
+    assert (summary["seatings_flat"], summary["seatings_surface"]) == (c["expected_accepted_flat"],
+                                                                       c["expected_accepted_surface"])
+    # about one answer per request: 20 a second, far fewer than the 100 a second it holds
+    assert 10 * run.duration_s <= summary["lines"] <= 25 * (run.duration_s + 1.0)
+    assert "# poll: b'?\\r' every 0.05 s" in (tmp_path / "p" / "stream.rec").read_text()  # settings in the header
+
+
+def test_a_streaming_virtual_indicator_ignores_requests():
+    # without `poll` the server streams on its own schedule whatever the client sends
+    assert short_session().scenario.poll_request == b""
+    assert short_session(poll="?\\r").scenario.poll_request == b"?\r"

@@ -74,6 +74,7 @@ class Scenario:
     width: int = 0  # pad the number to this many characters
     pad: str = " "  # with spaces or "0"
     decimals: int | None = None  # None: from the step
+    poll: str = ""  # non-empty: answer only when this request arrives (backslash escapes, e.g. "?\\r")
     # faults
     garbage_per_min: float = 0.0
     half_line_at_start: bool = False
@@ -83,6 +84,11 @@ class Scenario:
     start_utc: str = "2025-01-06T09:00:00Z"  # start time written into recordings
     description: str = ""
     source: str = ""
+
+    @property
+    def poll_request(self) -> bytes:
+        """The request bytes of a polled indicator (escapes such as \\r decoded), b"" for a streaming one."""
+        return self.poll.encode("latin-1").decode("unicode_escape").encode("latin-1") if self.poll else b""
 
     @property
     def step(self) -> float:
@@ -179,7 +185,8 @@ _LAYOUT = {
              "amplitude": ("rock_amplitude_mm", "L")},
     "stream": {"mode": ("mode", str), "rate": ("rate_hz", float), "unit": ("unit", str), "sign": ("sign", str),
                "decimal": ("decimal", str), "suffix": ("suffix", str), "ending": ("ending", str),
-               "width": ("width", int), "pad": ("pad", str), "decimals": ("decimals", int)},
+               "width": ("width", int), "pad": ("pad", str), "decimals": ("decimals", int),
+               "poll": ("poll", str)},
     "faults": {"garbage_per_min": ("garbage_per_min", float), "half_line_at_start": ("half_line_at_start", bool),
                "disconnect_at": ("disconnect_at_s", float), "disconnect_for": ("disconnect_for_s", float)},
 }

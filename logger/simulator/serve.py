@@ -40,6 +40,8 @@ class _Server(abc.ABC):
         self._lock = threading.RLock()
         self._plugged = True
         self.error: BaseException | None = None
+        self._request = run.scenario.poll_request
+        self._latest: bytes | None = None
 
     # -- transport hooks
     @abc.abstractmethod
@@ -136,11 +138,23 @@ class _Server(abc.ABC):
                 self._flush(batch)
                 if not self._sleep_until(due):
                     return
+            if self._request:
+                self._latest = data  # a polled indicator only shows it; it is sent when asked
+                continue
             batch.append(data)
             if len(batch) >= 512:
                 self._flush(batch)
         self._flush(batch)
         self._drain_out()
+
+    def _received(self, data: bytes) -> None:
+        """What the client sent: a polled indicator answers each request with its latest reading."""
+        if not self._request or self._latest is None:
+            return
+        for _ in range(data.count(self._request)):
+            with self._lock:
+                ok = self._plugged and self._client_ready() and self._send(self._latest)
+            self.lines_sent += bool(ok)
 
     def _drain_out(self) -> None:
         """Give the client a moment to read the tail before the link closes."""
@@ -210,9 +224,11 @@ class PtyServer(_Server):
         r, _, _ = select.select([master], [], [], timeout)
         if r:
             try:
-                os.read(master, 4096)  # what the client sends (poll requests, keystrokes) is dropped
+                data = os.read(master, 4096)  # poll requests, keystrokes
             except OSError:
                 time.sleep(timeout)
+                return
+            self._received(data)
 
     def _send(self, data: bytes) -> bool:
         view = memoryview(data)
@@ -304,9 +320,12 @@ class TcpServer(_Server):
                         conn.close()  # one client at a time, like a serial port
                 elif s is self._client:
                     try:
-                        if not s.recv(4096):
-                            self._drop_client()
+                        data = s.recv(4096)
                     except OSError:
+                        data = b""
+                    if data:
+                        self._received(data)
+                    else:
                         self._drop_client()
 
     def _drop_client(self) -> None:
