@@ -46,10 +46,12 @@ class SerialSource:
     def open(self) -> None:
         if self._ser is not None:
             return
+        # pyserial's rfc2217 handler refuses a write timeout (NotImplementedError); the others take one
+        extra = {} if self.url.lower().startswith("rfc2217://") else {"write_timeout": 1.0}
         try:
             self._ser = serial.serial_for_url(
                 self.url, baudrate=self.baudrate, bytesize=self.bytesize, parity=PARITIES[self.parity],
-                stopbits=self.stopbits, timeout=self.read_timeout_s, write_timeout=1.0, exclusive=True,
+                stopbits=self.stopbits, timeout=self.read_timeout_s, exclusive=True, **extra,
             )
         except (serial.SerialException, OSError, ValueError) as exc:
             err = DeviceNotFound(open_error_message(self.url, exc))
