@@ -36,7 +36,7 @@ REC_FLUSH_S = 0.5  # stream.rec to disk at least this often (samples.csv: runfol
 VIEW_EVERY_S = 0.2  # the live panel is redrawn about five times a second
 
 
-class NeverAppeared(Exception):
+class NeverAppeared(UserError):
     """The device was not there at the start and did not come within the wait."""
 
 
@@ -73,12 +73,19 @@ def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | P
             view=None, cues: bool = True, force: bool = False, stop: _Stop | None = None) -> dict:
     """Capture into `out_dir` until the duration, the seating count or a stop signal; return the summary."""
     stop = stop or _Stop()
+    fresh = not Path(out_dir).exists()
     out = prepare_folder(out_dir, force)
     src = SerialSource(port, baudrate=baudrate, bytesize=bytesize, parity=parity, stopbits=stopbits,
                        poll_command=poll_command, poll_interval_s=poll_interval_s)
     view = view or PlainLog(profile.unit)
     view.device = port
-    _open_with_wait(src, wait_s, stop, lambda: view.state_changed("waiting for device"))
+    try:
+        _open_with_wait(src, wait_s, stop, lambda: view.state_changed("waiting for device"))
+    except UserError:
+        if fresh:
+            with contextlib.suppress(OSError):
+                out.rmdir()  # nothing was received: leave no empty run folder behind
+        raise
     t0 = time.monotonic()
     start_wall = round(time.time(), 6)  # as the recording header states it
 

@@ -64,6 +64,10 @@ class SaglogGroup(click.Group):
         except UserError as exc:
             click.echo(f"saglog: error: {exc}", err=True)
             sys.exit(EXIT_USER_ERROR)
+        except ArithmeticError as exc:  # an input so extreme that the arithmetic overflows
+            click.echo(f"saglog: error: a number on the command line or in the profile is out of range ({exc})",
+                       err=True)
+            sys.exit(EXIT_USER_ERROR)
         sys.exit(rv if isinstance(rv, int) else 0)
 
 

@@ -28,7 +28,7 @@ SEATINGS_COLUMNS = (
     Column("spread_mm", "float", "time-weighted standard deviation of those samples (how steady it was)"),
     Column("n", "int", "number of samples in the value"),
     Column("accepted", "bool", "`true` if the seating counts towards the result"),
-    Column("reason", "text", "why it was rejected, e.g. `outlier: modified z = 7.2 > 3.5`; empty if accepted"),
+    Column("reason", "text", "why it was rejected, e.g. `outlier: modified z = +7.2 beyond 3.5`; empty if accepted"),
     Column("zero_mm", "float", "the fitted zero at this seating's time (drift included)"),
     Column("sagitta_mm", "float", "surface seatings: the sagitta against `zero_mm`; empty for flats"),
     Column("score", "float", "the outlier statistic of the rejection method (e.g. modified z)"),

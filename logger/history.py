@@ -54,7 +54,7 @@ def history_table(runs, target_radius_mm: float | None = None) -> pd.DataFrame:
     """One row per run in time order: start, label, kind, radius ± U (mm), the target and what is left.
 
     The target is the one given, else the latest run's summary target (the same for every row);
-    radius_to_go_mm = target - radius.
+    radius_to_go_mm = radius - target (as in summary.json: positive while the radius is still too long).
     """
     t = runs_table(runs)
     t["kind"] = [run_kind(lab, sur) for lab, sur in zip(t["label"], t["surface"])]
@@ -62,7 +62,7 @@ def history_table(runs, target_radius_mm: float | None = None) -> pd.DataFrame:
         known = t["target_radius_mm"].dropna()
         target_radius_mm = float(known.iloc[-1]) if len(known) else math.nan
     t["target_radius_mm"] = float(target_radius_mm)
-    t["radius_to_go_mm"] = t["target_radius_mm"] - t["radius_mm"]
+    t["radius_to_go_mm"] = t["radius_mm"] - t["target_radius_mm"]
     return t[list(HISTORY_COLUMNS)].reset_index(drop=True)
 
 

@@ -10,6 +10,7 @@ a seating is accepted, two for a rejected seating, three when the zero is set.
 from __future__ import annotations
 
 import sys
+import threading
 import time
 
 from rich.console import Console, Group
@@ -61,10 +62,21 @@ class Cues(Listener):
         self.enabled = enabled
         self._zero_set = False
 
+    GAP_S = 0.25  # between rings, so that terminals sound each one
+
     def ring(self, times: int) -> None:
-        if self.enabled:
-            self.stream.write("\a" * times)
+        """Ring `times` bells, spaced out on a timer thread so the capture loop never waits."""
+        if not self.enabled:
+            return
+        for k in range(times):
+            threading.Timer(k * self.GAP_S, self._bell).start()
+
+    def _bell(self) -> None:
+        try:
+            self.stream.write("\a")
             self.stream.flush()
+        except (OSError, ValueError):
+            pass  # the terminal went away: no bell, nothing else lost
 
     def seating(self, seating, result) -> None:
         d = result.decisions[seating.index]

@@ -7,6 +7,7 @@ millimetres here, once, so nothing downstream sees inches.
 from __future__ import annotations
 
 import functools
+import math
 
 import click
 
@@ -73,8 +74,8 @@ def run_settings_from(profile: Profile, kw: dict) -> RunSettings:
     def mm(name, value):
         if value is None:
             return None
-        if value <= 0:
-            raise UserError(f"--{name.replace('_', '-')}: must be positive, got {value:g}")
+        if not (math.isfinite(value) and value > 0):
+            raise UserError(f"--{name.replace('_', '-')}: must be a positive number, got {value:g}")
         return to_mm(value, unit)
 
     diameter = mm("diameter", o["diameter"])
@@ -85,15 +86,23 @@ def run_settings_from(profile: Profile, kw: dict) -> RunSettings:
     if o["focal_length"] is not None:
         target = geometry.radius_from_focal_length_mm(mm("focal_length", o["focal_length"]))
     if o["focal_ratio"] is not None:
-        if o["focal_ratio"] <= 0:
+        if not (math.isfinite(o["focal_ratio"]) and o["focal_ratio"] > 0):
             raise UserError(f"--focal-ratio: must be positive, got {o['focal_ratio']:g}")
         if diameter is None:
             raise UserError("--focal-ratio needs --diameter")
         target = geometry.radius_from_focal_length_mm(o["focal_ratio"] * diameter)
-    if o["settle"] is not None and o["settle"] <= 0:
-        raise UserError(f"--settle: must be positive, got {o['settle']:g}")
-    if o["z_cut"] <= 0:
-        raise UserError(f"--z-cut: must be positive, got {o['z_cut']:g}")
+    if o["settle"] is not None and not (math.isfinite(o["settle"]) and o["settle"] > 0):
+        raise UserError(f"--settle: must be a positive number of seconds, got {o['settle']:g}")
+    if not (math.isfinite(o["z_cut"]) and o["z_cut"] > 0):
+        raise UserError(f"--z-cut: must be a positive number, got {o['z_cut']:g}")
+    if target is not None:
+        option = "--" + given[0].replace("_", "-")
+        for surface in geometry.SURFACES:  # the target must be a sphere this spherometer can sit on
+            r, rho = profile.contact_mm(surface)
+            try:
+                geometry.probe_sagitta_mm(target, r, rho, surface)
+            except UserError as exc:
+                raise UserError(f"{option}: {exc}") from None
     detector = DetectorSettings.for_step(
         profile.indicator.resolution_mm, settle_s=o["settle"], band_mm=mm("band", o["band"]),
         lift_mm=mm("lift", o["lift"]))

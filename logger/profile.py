@@ -169,6 +169,8 @@ def parse_profile(data: dict, source: str = "profile") -> Profile:
     else:
         params["ring_radius"] = L("ring_radius")
         params["ball_diameter"] = L("ball_diameter", allow_zero=True) if "ball_diameter" in sph else 0.0
+        if params["ball_diameter"] / 2 >= params["ring_radius"]:
+            raise UserError(f"{source}: [spherometer] ball_diameter is too large for the ring_radius")
         u.update(ring_radius=u_of["ring_radius"], ball_diameter=u_of["ball_diameter"])
     spherometer = Spherometer(kind, params, u)
     if kind == "three-ball":

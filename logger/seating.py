@@ -33,6 +33,7 @@ from dataclasses import dataclass
 import numpy as np
 
 LIFTED, SETTLING, SEATED = "lifted", "settling", "seated"
+REPEAT_MEMORY_S = 1.0  # a stream that repeated a value this recently is sending continuously
 
 _COMPACT_AT = 20000  # samples kept per seating before pairs are merged (bounded memory)
 
@@ -56,7 +57,7 @@ class DetectorSettings:
 class Seating:
     index: int
     t_start_s: float  # when the reading first held (the instrument came to rest)
-    t_end_s: float  # the last moment it held (the lift began after this)
+    t_end_s: float  # when it stopped holding: the first reading that left it (or the end of the stream)
     value_mm: float  # robust time-weighted centre of the settled samples
     spread_mm: float  # time-weighted standard deviation of the settled samples
     n: int  # samples used
@@ -89,7 +90,10 @@ class SeatingDetector:
         self._centre = math.nan
         self._last_t = -math.inf
         self._last_v = math.nan
-        self._repeats = 0  # readings equal to the one before: a continuous stream repeats, on-change never
+        # when a reading last repeated the one before: a continuous stream repeats values, an
+        # on-change one never does; a few repeats (a keep-alive, a value re-sent after a replug) are
+        # forgotten after REPEAT_MEMORY_S
+        self._last_repeat_t = -math.inf
         self._resting = False  # holding still at the spindle's stop
         self._ct: list[float] = []  # samples since the reading came roughly to rest (see _coarse)
         self._cv: list[float] = []
@@ -104,7 +108,7 @@ class SeatingDetector:
         (it sends continuously) holds only by its samples: there, silence is
         a delay in delivery (a busy computer, a slow link), not a held value.
         """
-        if self.state == SEATED or self._resting or not self._t or self._repeats >= 3:
+        if self.state == SEATED or self._resting or not self._t or t_s - self._last_repeat_t <= REPEAT_MEMORY_S:
             return
         held_s = t_s - self._t[0]
         if held_s >= self.s.settle_s:
@@ -117,7 +121,7 @@ class SeatingDetector:
         """One reading; returns a Seating when this reading ended one.  (The hot path: kept lean.)"""
         self._last_t = t_s
         if value_mm == self._last_v:
-            self._repeats += 1
+            self._last_repeat_t = t_s
         self._last_v = value_mm
         if self.state != SEATED:
             self.advance(t_s)
@@ -179,6 +183,7 @@ class SeatingDetector:
         self._ct, self._cv = [], []
         self._resting = False
         self._most_out = math.inf
+        self._last_repeat_t, self._last_v = -math.inf, math.nan
         self.current_index = None
         return done
 

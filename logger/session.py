@@ -74,46 +74,74 @@ def default_gap_mm(step_mm: float) -> float:
     return max(10 * step_mm, 0.01)
 
 
-def classify(seatings: list[Seating], gap_mm: float | None, flat_first: int | None, step_mm: float) -> list[str]:
+OPENING = 5  # the zero is sought among this many first steady seatings
+
+
+def _zero_level(v: np.ndarray, gap_mm: float) -> float:
+    """The flat's level: the median of the first seating's group among the opening ones.
+
+    When the first seating stands alone and the next ones agree among
+    themselves, it is either a single flat followed by the surface or grit
+    on the first flat.  The rest of the run decides: if later seatings come
+    back to the second group's level and never to the first's, the first was
+    grit and the second group is the flat.
+    """
+    first = v[:OPENING]
+    group0 = first[np.abs(first - v[0]) <= gap_mm]
+    if len(group0) >= 2 or len(v) < 3:
+        return float(np.median(group0))
+    y = v[1]
+    group1 = first[np.abs(first - y) <= gap_mm]
+    left = np.nonzero(np.abs(v[1:] - y) > gap_mm)[0]  # where the run leaves the second group's level
+    later = v[1 + left[0]:] if len(left) else v[:0]
+    back_to_y = np.any(np.abs(later - y) <= gap_mm)
+    back_to_first = np.any(np.abs(later - v[0]) <= gap_mm)
+    if len(group1) >= 2 and back_to_y and not back_to_first:
+        return float(np.median(group1))
+    return float(v[0])
+
+
+def classify(seatings: list[Seating], gap_mm: float | None, flat_first: int | None, step_mm: float,
+             steady: list[bool] | None = None) -> list[str]:
     """Phase of each seating: the flat (zero and zero checks) or the surface.
 
-    The zero is the median of the opening seatings (those within `gap_mm` of
-    the running median from the start, or the first `flat_first`).  Seatings
-    further than `gap_mm` from it are surface candidates; their median is the
-    surface level and every seating goes to the nearer of the two levels.
-    With `flat_first` and no explicit gap, the gap shrinks to what the
-    opening flats' scatter allows (very shallow curves).  A
-    single far seating that is not the newest is grit on the flat, not a
-    surface phase, so it stays with the flat (and is rejected there).
+    The zero comes from the opening seatings (`_zero_level`; with
+    `flat_first`, the median of the first N).  Seatings further than `gap_mm` from the
+    zero are surface candidates; the surface level is the median of those on
+    the side most of them lie, and a candidate is surface when it is nearer
+    to that level than to the zero.  A single far seating that is not the
+    newest is grit on the flat, not a surface phase.  With `flat_first` and
+    no explicit gap, the gap shrinks to what the opening flats' scatter
+    allows (very shallow curves).  Unsteady seatings (`steady` False) take
+    no part in finding the levels; they are placed by the same rule.
     """
     v = np.array([s.value_mm for s in seatings])
     if len(v) == 0:
         return []
+    ok = np.ones(len(v), bool) if steady is None else np.asarray(steady, bool)
+    if not ok.any():
+        ok = np.ones(len(v), bool)
+    n_first = min(flat_first, len(v)) if flat_first else 0
     if flat_first:
-        opening = v[: min(flat_first, len(v))]
+        opening = v[:n_first]
+        zero = float(np.median(opening))
+        if gap_mm is None:
+            # told where the flat ends: the surface need only stand clear of the flat's own scatter
+            gap_mm = (max(3 * step_mm, 5 * 1.4826 * float(np.median(np.abs(opening - zero))))
+                      if len(opening) >= 2 else default_gap_mm(step_mm))
     else:
-        k = 1
-        while k < len(v) and abs(v[k] - np.median(v[:k])) <= (gap_mm or default_gap_mm(step_mm)):
-            k += 1
-        opening = v[:k]
-    zero = float(np.median(opening))
-    if flat_first and len(opening) >= 2 and gap_mm is None:
-        # told where the flat ends: the surface need only stand clear of the flat's own scatter
-        gap_mm = max(3 * step_mm, 5 * 1.4826 * float(np.median(np.abs(opening - zero))))
-    elif gap_mm is None:
-        gap_mm = default_gap_mm(step_mm)
-    first_surface = flat_first if flat_first else len(opening)
-    far = [i for i in range(first_surface, len(v)) if abs(v[i] - zero) > gap_mm]
-    if not far or (len(far) == 1 and far[0] != len(v) - 1):
+        gap_mm = default_gap_mm(step_mm) if gap_mm is None else gap_mm
+        zero = _zero_level(v[ok], gap_mm)
+    idx = np.arange(len(v))
+    far = idx[ok & (idx >= n_first) & (np.abs(v - zero) > gap_mm)]
+    if len(far):
+        above = far[v[far] > zero]
+        far = above if 2 * len(above) >= len(far) else far[v[far] < zero]
+    if len(far) == 0 or (len(far) == 1 and far[0] != len(v) - 1):
         return [FLAT] * len(v)
     level = float(np.median(v[far]))
-    phases = []
-    for i, x in enumerate(v):
-        if i < first_surface:
-            phases.append(FLAT)
-        else:
-            phases.append(SURFACE if abs(x - level) < abs(x - zero) else FLAT)
-    return phases
+    return [SURFACE if i >= n_first and abs(x - zero) > gap_mm and abs(x - level) < abs(x - zero) else FLAT
+            for i, x in enumerate(v)]
 
 
 def fit_zero(times, values, bracketed: bool, fallback: tuple[float, float] | None) -> _Zero:
@@ -174,9 +202,6 @@ def _analyse(seatings: list[Seating], profile: Profile, settings: AnalysisSettin
     step = profile.indicator.resolution_mm
     sign = profile.indicator.sign
     decisions = [Decision(s) for s in seatings]
-    phases = classify(seatings, settings.phase_gap_mm, settings.flat_first, step)
-    for d, ph in zip(decisions, phases):
-        d.phase = ph
 
     # 1. unsteady seatings (rocking, a foot slipping): their own samples wander
     spreads = np.array([s.spread_mm for s in seatings]) if seatings else np.array([])
@@ -186,6 +211,9 @@ def _analyse(seatings: list[Seating], profile: Profile, settings: AnalysisSettin
     for d in decisions:
         if d.seating.spread_mm > limit:
             d.accepted, d.reason = False, f"unsteady: spread {d.seating.spread_mm:.4f} mm beyond {limit:.4f} mm"
+    phases = classify(seatings, settings.phase_gap_mm, settings.flat_first, step, [d.accepted for d in decisions])
+    for d, ph in zip(decisions, phases):
+        d.phase = ph
 
     flats = [d for d in decisions if d.phase == FLAT]
     surf = [d for d in decisions if d.phase == SURFACE]
@@ -249,6 +277,8 @@ def _analyse(seatings: list[Seating], profile: Profile, settings: AnalysisSettin
     sag = np.array([d.sagitta_mm for d in good])
     n = len(sag)
     sd = float(sag.std(ddof=1)) if n >= 2 else None
+    # the flats' own scatter about the zero fit (drift removed), when they can tell it
+    flat_sd = zero.u_mm * math.sqrt(len(good_flats)) if zero.u_mm is not None else None
     if zero.u_mm is None and sd is not None:  # one flat: borrow the surface scatter (same hands, same instrument)
         zero = zero_fit((sd, n - 1))
     t_surf = float(np.mean([d.seating.t_mid_s for d in good]))
@@ -272,7 +302,8 @@ def _analyse(seatings: list[Seating], profile: Profile, settings: AnalysisSettin
             "One surface seating gives a radius but no uncertainty: seat the surface again."))
         return SessionResult(decisions, summary)
 
-    comps = reading_components(step, sd, n)  # scatter, and the step's terms while it is below one count
+    # scatter, and each reading's step term while that reading scatters by less than one count
+    comps = reading_components(step, sd, n, zero_scatter_mm=flat_sd if flat_sd is not None else sd)
     comps.append(Component("zero on the flat", u_zero, 1.0, zero.dof, "A", "t" if math.isfinite(zero.dof) else "normal"))
     budget = radius_budget(profile.spherometer, surface, s_mean, comps)
     u_sag = math.sqrt(sum(c.u**2 for c in comps))

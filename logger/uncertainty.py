@@ -80,19 +80,24 @@ def scatter_component(scatter_mm: float, n: int, name: str = "seating scatter") 
     return Component(name, scatter_mm / math.sqrt(n), dof=n - 1, kind="A", distribution="t")
 
 
-def reading_components(resolution_mm: float, scatter_mm: float | None = None, n: int | None = None) -> list[Component]:
+def reading_components(resolution_mm: float, scatter_mm: float | None = None, n: int | None = None,
+                       zero_scatter_mm: float | None = None) -> list[Component]:
     """The sagitta's own terms: the seating scatter of a mean of n (when known) and the indicator's step.
 
     The sagitta is a surface reading minus a zero reading, each quantised.
     Averaging beats the step only when the seatings scatter by at least
-    about one count; then the scatter already holds the quantisation and
-    the resolution terms are left out.  Below one count (or with no
-    scatter known) the two resolution terms stay.
+    about one count; then the scatter already holds the quantisation and that
+    reading's resolution term is left out.  Below one count (or with no
+    scatter known) it stays.  The surface term follows `scatter_mm`; the zero
+    term follows `zero_scatter_mm` (the flat seatings' own scatter) when it is
+    given, else the same `scatter_mm`.
     """
     comps = [] if scatter_mm is None else [scatter_component(scatter_mm, n)]
+    zero_sd = scatter_mm if zero_scatter_mm is None else zero_scatter_mm
     if scatter_mm is None or scatter_mm < resolution_mm:
-        comps += [resolution_component("resolution, surface reading", resolution_mm),
-                  resolution_component("resolution, zero reading", resolution_mm)]
+        comps.append(resolution_component("resolution, surface reading", resolution_mm))
+    if zero_sd is None or zero_sd < resolution_mm:
+        comps.append(resolution_component("resolution, zero reading", resolution_mm))
     return comps
 
 

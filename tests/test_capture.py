@@ -156,3 +156,9 @@ def test_a_streaming_virtual_indicator_ignores_requests():
     # without `poll` the server streams on its own schedule whatever the client sends
     assert short_session().scenario.poll_request == b""
     assert short_session(poll="?\\r").scenario.poll_request == b"?\r"
+
+
+def test_a_device_that_never_appeared_leaves_no_empty_run_folder(tmp_path):
+    proc = _capture_process(tmp_path / "missing", tmp_path / "run", "--wait", "0.3")
+    proc.communicate(timeout=30)
+    assert proc.returncode == 3 and not (tmp_path / "run").exists()

@@ -53,7 +53,7 @@ def test_ordering_target_band_and_kinds(tmp_path):
     assert list(pd.to_datetime(table["started"])) == sorted(pd.to_datetime(table["started"]))
     assert table["kind"].tolist() == ["mirror"] * 3 + ["tool"] * 2
     assert (table["target_radius_mm"] == 2400.0).all()  # taken from the summaries
-    np.testing.assert_allclose(table["radius_to_go_mm"], 2400.0 - table["radius_mm"])
+    np.testing.assert_allclose(table["radius_to_go_mm"], table["radius_mm"] - 2400.0)  # as in summary.json
     assert png.read_bytes()[:4] == b"\x89PNG"
 
     runs = load_runs(mirror + tool)

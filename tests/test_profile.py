@@ -87,6 +87,8 @@ BAD = [
     ('unit = "mm"\n[spherometer]\nkind = "ring"\ninner_diameter = 60.0\nouter_diameter = 70.0\nedge_radius = 3.0\n'
      "[indicator]\nresolution = 0.001\n", "edge_radius is too large"),
     ('unit = "mm"\n[spherometer]\nkind = "calibrated"\n[indicator]\nresolution = 0.001\n', "missing key 'ring_radius'"),
+    ('unit = "mm"\n[spherometer]\nkind = "calibrated"\nring_radius = 40.0\nball_diameter = 100.0\n'
+     "[indicator]\nresolution = 0.001\n", "ball_diameter is too large for the ring_radius"),
 ]
 
 

@@ -96,3 +96,21 @@ def test_an_existing_run_is_not_overwritten(tmp_path):
     assert run_saglog("replay", rec, "--profile", EXAMPLE_PROFILE, "--out", tmp_path / "o").returncode == 0
     r = run_saglog("replay", rec, "--profile", EXAMPLE_PROFILE, "--out", tmp_path / "o")
     assert r.returncode == 2 and "--force" in r.stderr
+
+
+def test_impossible_or_non_finite_options_are_refused_before_anything_runs(tmp_path):
+    rec = tmp_path / "s.rec"
+    write_session(rec)
+    runner = CliRunner()
+    base = ["replay", str(rec), "--profile", str(EXAMPLE_PROFILE), "--out", str(tmp_path / "o")]
+    for extra, word in [(["--lift", "nan"], "--lift"), (["--z-cut", "inf"], "--z-cut"), (["--settle", "nan"], "--settle"),
+                        (["--target-radius", "30"], "--target-radius"), (["--focal-ratio", "nan", "--diameter", "150"],
+                                                                          "--focal-ratio")]:
+        r = runner.invoke(main, base + extra)
+        assert r.exit_code == 2 and word in r.stderr and len(r.stderr.strip().splitlines()) == 1, (extra, r.stderr)
+    assert not (tmp_path / "o").exists()  # refused before the run folder was made
+
+
+def test_overflowing_numbers_are_a_one_line_error():
+    r = CliRunner().invoke(main, ["radius", "--profile", str(EXAMPLE_PROFILE), "--sagitta", "1e-200"])
+    assert r.exit_code == 2 and "out of range" in r.stderr and "Traceback" not in r.stderr

@@ -130,3 +130,22 @@ def test_a_delivery_stall_in_a_continuous_stream_is_not_a_seating():
     samples += [(2.0 + i * 0.02, 0.0) for i in range(100)] + [(4.0 + i * 0.02, -1.5) for i in range(50)]
     found = detect(samples, 5.0)
     assert len(found) == 1 and abs(found[0].value_mm) < 1e-9
+
+
+def test_a_few_repeated_lines_do_not_turn_an_on_change_stream_continuous():
+    # an on-change indicator that re-sends its value a few times (after a replug, a keep-alive)
+    # must still have its silently held placements counted
+    det = SeatingDetector(DetectorSettings.for_step(STEP))
+    found, t = [], 0.0
+    for _ in range(4):
+        det.feed(t, -1.5)
+        t += 0.1
+    for k in range(5):
+        t += 1.0
+        det.feed(t, 0.1 * k)  # placed: one line, then silence while it holds
+        t += 2.0
+        det.advance(t)
+        if (s := det.feed(t, -1.5)) is not None:
+            found.append(s)
+        t += 1.0
+    assert len(found) == 5

@@ -166,3 +166,46 @@ def test_same_count_is_said_and_resolution_kept():
     # the resolution stays in the budget: q / sqrt(12) per reading, rectangular (GUM F.2.2.1)
     res_terms = [b for b in s["budget"] if "resolution" in b["name"]]
     assert len(res_terms) == 2 and all(math.isclose(b["u_mm"], q / math.sqrt(12)) for b in res_terms)
+
+
+def _seatings(values, spread=0.0005):
+    return [Seating(i, 5.0 * i, 5.0 * i + 2.0, v, spread, 200) for i, v in enumerate(values)]
+
+
+def test_grit_on_the_very_first_seating_does_not_become_the_zero():
+    # the exact construction's sagitta on the example legs; the first flat has a 0.5 mm grain under a foot
+    s_true = three_ball_reading(*LEGS, BALL / 2, 2400.0, "concave")
+    values = [0.5, 0.0, 0.0, 0.0] + [-s_true] * 5 + [0.0]
+    res = analyse(_seatings(values), make_profile(), AnalysisSettings())
+    assert not res.decisions[0].accepted and res.decisions[0].phase == "flat"
+    assert res.summary["seatings_flat"] == 4 and res.summary["seatings_surface"] == 5
+    assert math.isclose(res.summary["radius_mm"], 2400.0, rel_tol=1e-7)
+
+
+def test_a_rocked_first_seating_does_not_become_the_zero():
+    s_true = three_ball_reading(*LEGS, BALL / 2, 2400.0, "concave")
+    seatings = _seatings([0.004, 0.0, 0.0, 0.0] + [-s_true] * 5 + [0.0])
+    seatings[0] = Seating(0, 0.0, 2.0, 0.004, 0.02, 200)  # wandered by 20 um while "seated"
+    res = analyse(seatings, make_profile(), AnalysisSettings())
+    assert res.decisions[0].reason.startswith("unsteady")
+    assert math.isclose(res.summary["zero_mm"], 0.0, abs_tol=1e-12)
+    assert math.isclose(res.summary["radius_mm"], 2400.0, rel_tol=1e-7)
+
+
+def test_stray_far_seatings_on_both_sides_are_not_a_surface():
+    # a flat-only session with two grains of grit, one on each side: no surface phase at all
+    res = analyse(_seatings([0, .001, 0, .03, .001, -.029, 0, .001, 0]), make_profile(), AnalysisSettings())
+    assert res.summary["seatings_surface"] == 0 and res.summary["status"] == "no surface seatings"
+    assert res.summary["seatings_rejected"] == 2
+
+
+def test_flats_on_one_count_keep_the_zero_resolution_term():
+    # surface seatings scatter by more than a count (dithered), the flats all show one count:
+    # the zero reading's quantisation q / sqrt(12) (GUM F.2.2.1) must stay in the budget
+    rng = np.random.default_rng(4)
+    s_true = three_ball_reading(*LEGS, BALL / 2, 2400.0, "concave")
+    values = [0.0] * 4 + list(-s_true + rng.normal(0, 0.0015, 8)) + [0.0] * 3
+    res = analyse(_seatings(values), make_profile(), AnalysisSettings())
+    names = [c.name for c in res.budget.components]
+    assert "resolution, zero reading" in names and "resolution, surface reading" not in names
+    assert res.summary["zero_u_mm"] == 0.0 and res.summary["sagitta_u_mm"] > 0.001 / math.sqrt(12)
