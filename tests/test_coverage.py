@@ -9,6 +9,11 @@ sessions (the meaning of a coverage interval, JCGM 100:2008 6.2 and
 JCGM 101:2008 5.3).  U must also stay honest the other way: at most twice
 the ideal value, the one computed from the true seating scatter plus the
 stated Type B terms.
+
+The simulator places its seatings with logger.geometry, the same relation
+the analysis inverts, so this study checks the detection, the statistics
+and the budget, not the geometry; the geometry is checked against exact
+constructions in tests/test_geometry.py and tests/test_simulator.py.
 """
 
 from __future__ import annotations
