@@ -148,7 +148,7 @@ def test_an_indicator_that_answers_only_when_asked(tmp_path):
     assert (summary["seatings_flat"], summary["seatings_surface"]) == (c["expected_accepted_flat"],
                                                                        c["expected_accepted_surface"])
     # about one answer per request: 20 a second, far fewer than the 100 a second it holds
-    assert 10 * run.duration_s <= summary["lines"] <= 25 * (run.duration_s + 1.0)
+    assert 5 * run.duration_s <= summary["lines"] <= 25 * (run.duration_s + 1.0)
     assert "# poll: b'?\\r' every 0.05 s" in (tmp_path / "p" / "stream.rec").read_text()  # settings in the header
 
 
