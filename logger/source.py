@@ -46,7 +46,7 @@ class SerialSource:
     def open(self) -> None:
         if self._ser is not None:
             return
-        # pyserial's rfc2217 handler refuses a write timeout (NotImplementedError); the others take one
+        # pyserial's rfc2217 handler refuses a write timeout (it raises at open); the others take one
         extra = {} if self.url.lower().startswith("rfc2217://") else {"write_timeout": 1.0}
         try:
             self._ser = serial.serial_for_url(
