@@ -8,6 +8,7 @@
 
 from __future__ import annotations
 
+import os
 import shutil
 import sys
 import tempfile
@@ -25,7 +26,8 @@ from logger.seating import DetectorSettings  # noqa: E402
 from logger.session import AnalysisSettings  # noqa: E402
 from logger.simulator import load_scenario, simulate, write_recording  # noqa: E402
 
-PROFILE = load_profile(ROOT / "logger" / "profiles" / "example-three-ball.toml")
+os.chdir(ROOT)  # paths in the pictures are then relative to the repository, as a user would type them
+PROFILE = load_profile(Path("logger") / "profiles" / "example-three-ball.toml")
 
 
 def settings(label: str) -> RunSettings:
@@ -37,7 +39,7 @@ def main() -> None:
     work = Path(tempfile.mkdtemp(prefix="saglog-pictures-"))
     try:
         run_dir = work / "messy"
-        replay_file(ROOT / "sample_streams" / "messy-grit-rock.rec", PROFILE, settings("mirror (invented)"), run_dir)
+        replay_file(Path("sample_streams") / "messy-grit-rock.rec", PROFILE, settings("mirror (invented)"), run_dir)
         png, _ = write_report(run_dir)
         shutil.copy(png, ROOT / "docs" / "report-example.png")
         dirs = []
