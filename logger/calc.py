@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import json
 import math
-import os
 from datetime import datetime, timezone
 from pathlib import Path
 
@@ -18,6 +17,7 @@ import click
 from . import geometry
 from .errors import UserError
 from .profile import DEFAULT_U_MM, SENSES, load_profile, parse_profile
+from .runfolder import write_atomic
 from .uncertainty import Component, radius_budget, reading_components, seatings_needed
 from .units import check_unit, from_mm, to_mm
 
@@ -171,11 +171,6 @@ def _toml_value(value) -> str:
     return repr(float(value))
 
 
-def _tidy(value: float) -> float:
-    """Drop float noise from sums such as 70.02 - 6.35 (12 significant digits stay)."""
-    return float(f"{value:.12g}")
-
-
 def profile_text(data: dict, comment: str) -> str:
     """A profile's TOML text: the top-level keys, [spherometer], [indicator], and the default uncertainties."""
     lines = [f"# {line}" for line in comment.splitlines()]
@@ -235,11 +230,12 @@ def new_profile(out_path, unit, outside, inside, centres, ball, ring_inner, ring
             raise UserError("--ball: the ball diameter is needed for a three-ball spherometer")
         for v in values:
             _positive(v, option)
-        offset = {"--outside": -ball, "--inside": ball, "--centres": 0.0}[option]
-        legs = [_tidy(v + offset) for v in values]
-        if min(legs) <= 0:
+        if option == "--outside" and min(values) <= ball:
             raise UserError(f"{option}: a reading of {min(values):g} {unit} is not larger than the ball diameter")
-        sph = {"kind": kind, "leg_spacings": legs, "ball_diameter": ball}
+        if option == "--centres":
+            sph = {"kind": kind, "leg_spacings": list(values), "ball_diameter": ball}
+        else:  # kept as read: the legs then share the ball's error in the budget
+            sph = {"kind": kind, "leg_readings": list(values), "readings": option[2:], "ball_diameter": ball}
         how = f"{option[2:]} readings {' '.join(f'{v:g}' for v in values)} {unit}, ball {ball:g} {unit}"
     elif kind == "ring":
         if ring_inner is None or ring_outer is None:
@@ -261,13 +257,7 @@ def new_profile(out_path, unit, outside, inside, centres, ball, ring_inner, ring
     text = profile_text(data, f"Written by saglog new-profile at {stamp} from {how}.")
     if out.exists() and not force:
         raise UserError(f"{out}: already exists (use --force to replace it)")
-    tmp = out.with_name(out.name + ".tmp")
-    try:
-        tmp.write_text(text, encoding="utf-8")
-        os.replace(tmp, out)
-    except OSError as exc:
-        tmp.unlink(missing_ok=True)
-        raise UserError(f"{out}: cannot write ({exc.strerror or exc})") from None
+    write_atomic(out, text)
     load_profile(out)  # what was written reads back
     r_mm, rho_mm = parse_profile(data).contact_mm("concave")
     click.echo(f"wrote {out}: {kind}, ring radius {from_mm(r_mm, unit):.6g} {unit} (concave), "

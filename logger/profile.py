@@ -37,7 +37,7 @@ DEFAULT_U_MM = {
 
 _TOP_KEYS = {"unit", "name", "spherometer", "indicator", "uncertainty"}
 _SPH_KEYS = {
-    "three-ball": ({"kind", "leg_spacings", "ball_diameter"}, set()),
+    "three-ball": ({"kind", "ball_diameter"}, {"leg_spacings", "leg_readings", "readings"}),
     "ring": ({"kind", "inner_diameter", "outer_diameter"}, {"edge_radius"}),
     "calibrated": ({"kind", "ring_radius"}, {"ball_diameter"}),
 }
@@ -74,13 +74,29 @@ class Spherometer:
     def contact_mm(self, surface: str, params: dict | None = None) -> tuple[float, float]:
         p = self.params_mm if params is None else params
         if self.kind == "three-ball":
-            return geometry.circumradius_mm(p["a"], p["b"], p["c"]), p["ball_diameter"] / 2.0
+            return geometry.circumradius_mm(*self.legs_mm(p)), p["ball_diameter"] / 2.0
         if self.kind == "ring":
             e = p["edge_radius"]
             if surface == "concave":  # bears on the outer edge
                 return p["outer_diameter"] / 2.0 - e, e
             return p["inner_diameter"] / 2.0 + e, e  # convex: on the inner edge
         return p["ring_radius"], p["ball_diameter"] / 2.0  # calibrated
+
+    def legs_mm(self, params: dict | None = None) -> tuple[float, float, float]:
+        """Centre-to-centre leg spacings, from the spacings or from caliper readings over the balls.
+
+        Outside-to-outside of two balls = centre distance + one ball diameter,
+        inside-to-inside = centre distance - one (common practice).  Kept as
+        readings, the legs share the ball's error, which the budget and the
+        Monte Carlo check then see, because they vary the readings and the ball.
+        """
+        p = self.params_mm if params is None else params
+        if "a" in p:
+            return p["a"], p["b"], p["c"]
+        d = p["ball_diameter"]
+        if "outside_a" in p:
+            return p["outside_a"] - d, p["outside_b"] - d, p["outside_c"] - d
+        return p["inside_a"] + d, p["inside_b"] + d, p["inside_c"] + d
 
     def describe(self, unit: str = "mm") -> str:
         from .units import from_mm
@@ -148,11 +164,23 @@ def parse_profile(data: dict, source: str = "profile") -> Profile:
     params: dict[str, float] = {}
     u: dict[str, float] = {}
     if kind == "three-ball":
-        legs = sph["leg_spacings"]
+        if ("leg_spacings" in sph) == ("leg_readings" in sph):
+            raise UserError(f"{source}: [spherometer] give either leg_spacings (centre to centre) or "
+                            "leg_readings with readings = \"outside\" or \"inside\"")
+        if "leg_readings" in sph:
+            how = sph.get("readings")
+            if how not in ("outside", "inside"):
+                raise UserError(f"{source}: [spherometer] readings must be \"outside\" or \"inside\", not {how!r}")
+            key, names = "leg_readings", [f"{how}_{x}" for x in "abc"]
+        else:
+            if "readings" in sph:
+                raise UserError(f"{source}: [spherometer] readings goes with leg_readings, not leg_spacings")
+            key, names = "leg_spacings", list("abc")
+        legs = sph[key]
         if not isinstance(legs, list) or len(legs) != 3:
-            raise UserError(f"{source}: [spherometer] leg_spacings must be a list of three lengths")
-        for name, v in zip("abc", legs):
-            params[name] = _length(v, unit, f"{source}: [spherometer] leg_spacings", False)
+            raise UserError(f"{source}: [spherometer] {key} must be a list of three lengths")
+        for name, v in zip(names, legs):
+            params[name] = _length(v, unit, f"{source}: [spherometer] {key}", False)
             u[name] = u_of["leg_spacing"]
         params["ball_diameter"] = L("ball_diameter", allow_zero=True)
         u["ball_diameter"] = u_of["ball_diameter"]
@@ -174,11 +202,12 @@ def parse_profile(data: dict, source: str = "profile") -> Profile:
         u.update(ring_radius=u_of["ring_radius"], ball_diameter=u_of["ball_diameter"])
     spherometer = Spherometer(kind, params, u)
     if kind == "three-ball":
+        legs = spherometer.legs_mm()
         try:
-            r = geometry.circumradius_mm(params["a"], params["b"], params["c"])
+            r = geometry.circumradius_mm(*legs)
         except UserError as exc:  # name the file and key, not just the numbers
-            raise UserError(f"{source}: [spherometer] leg_spacings: {exc}") from None
-        if params["ball_diameter"] / 2 >= r or params["ball_diameter"] > min(params["a"], params["b"], params["c"]):
+            raise UserError(f"{source}: [spherometer] {key}: {exc}") from None
+        if params["ball_diameter"] / 2 >= r or params["ball_diameter"] > min(legs):
             raise UserError(f"{source}: [spherometer] ball_diameter is too large for the leg spacings (the balls would overlap)")
 
     ind = data["indicator"]

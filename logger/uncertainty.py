@@ -31,6 +31,7 @@ _INPUT_LABELS = {
     "a": "leg spacing a",
     "b": "leg spacing b",
     "c": "leg spacing c",
+    **{f"{how}_{x}": f"caliper reading {x} ({how} the balls)" for how in ("outside", "inside") for x in "abc"},
     "ball_diameter": "ball diameter",
     "inner_diameter": "ring inner diameter",
     "outer_diameter": "ring outer diameter",

@@ -162,13 +162,16 @@ def test_new_profile_from_caliper_readings_round_trips(tmp_path, how, offset):
     res = _new(tmp_path, "--unit", "mm", how, *readings, "--ball", "6.35", "--resolution", "0.001")
     assert res.exit_code == 0, res.stderr
     p = load_profile(tmp_path / "new.toml")
-    assert [p.spherometer.params_mm[k] for k in "abc"] == pytest.approx([x + offset for x in readings], abs=1e-9)
+    assert list(p.spherometer.legs_mm()) == pytest.approx([x + offset for x in readings], abs=1e-9)
     assert p.spherometer.params_mm["ball_diameter"] == 6.35 and p.indicator.resolution_mm == 0.001
-    again = _new(tmp_path, "--unit", "mm", "--centres", *[p.spherometer.params_mm[k] for k in "abc"],
+    # readings are kept as read (the legs share the ball's error); the geometry is that of the centres
+    again = _new(tmp_path, "--unit", "mm", "--centres", *p.spherometer.legs_mm(),
                  "--ball", "6.35", "--resolution", "0.001", name="again.toml")
     assert again.exit_code == 0
     q = load_profile(tmp_path / "again.toml")
-    assert (q.spherometer, q.indicator, q.unit) == (p.spherometer, p.indicator, p.unit)
+    for surface in ("concave", "convex"):
+        assert q.contact_mm(surface) == pytest.approx(p.contact_mm(surface), rel=1e-12)
+    assert (q.indicator, q.unit) == (p.indicator, p.unit)
 
 
 def test_new_profile_ring_and_calibrated_in_inches(tmp_path):

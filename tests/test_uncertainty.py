@@ -219,3 +219,28 @@ def test_seatings_needed_is_the_least_that_works(target, scatter, other_frac):
     u = lambda k: math.hypot(geometry.dradius_dsagitta(s, r) * scatter / math.sqrt(k), other)  # noqa: E731
     assert u(n) <= target * (1 + 1e-9)
     assert n == 1 or u(n - 1) > target * (1 - 1e-9)
+
+
+def test_legs_from_readings_share_the_ball_error_and_monte_carlo_agrees():
+    # Legs measured outside-to-outside are reading - d: all three move with the ball diameter d.
+    # The budget (central differences through the contact geometry) and a JCGM 101 Monte Carlo
+    # that draws the readings and d independently must agree, and u(R) from the instrument must
+    # exceed the value that treats legs and ball as independent (GUM 5.2: correlated inputs).
+    from logger.profile import parse_profile
+
+    def prof(sph):
+        return parse_profile({"unit": "mm", "spherometer": {"kind": "three-ball", "ball_diameter": 6.35, **sph},
+                              "indicator": {"resolution": 0.001},
+                              "uncertainty": {"leg_spacing": 0.01, "ball_diameter": 0.01}}, "t")
+
+    reads = prof({"leg_readings": [76.37, 76.33, 76.36], "readings": "outside"}).spherometer
+    centres = prof({"leg_spacings": [70.02, 69.98, 70.01]}).spherometer
+    s = 0.34
+    comps = [Component("seating scatter", 0.0003, kind="A")]  # normal: the comparison is about the legs
+    b_reads = radius_budget(reads, "concave", s, comps)
+    b_centres = radius_budget(centres, "concave", s, comps)
+    assert b_reads.value == pytest.approx(b_centres.value, rel=1e-12)
+    inst = lambda b: math.sqrt(sum(c.contribution ** 2 for c in b.components if c.kind == "B"))  # noqa: E731
+    assert inst(b_reads) > 1.5 * inst(b_centres)
+    draws = monte_carlo_radius(reads, "concave", s, comps, n=200_000, seed=3)
+    assert float(np.std(draws)) == pytest.approx(b_reads.u_c, rel=0.03)
