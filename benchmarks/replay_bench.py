@@ -8,7 +8,6 @@ seating detection, the analysis and the run folder.
 
 from __future__ import annotations
 
-import json
 import subprocess
 import sys
 import time

@@ -21,13 +21,14 @@ import numpy as np
 from scipy import stats
 
 METHODS = ("modified-z", "grubbs", "chauvenet", "none")
+MAD_TO_Z = 0.6745  # Iglewicz & Hoaglin's constant: the upper quartile of the standard normal
 
 
 def modified_z(values, floor: float, cut: float = 3.5):
     x = np.asarray(values, float)
     med = float(np.median(x))
     mad = max(float(np.median(np.abs(x - med))), floor)
-    scores = 0.6745 * (x - med) / mad
+    scores = MAD_TO_Z * (x - med) / mad
     return [
         (bool(abs(m) > cut), float(m), f"outlier: modified z = {m:+.1f} beyond {cut:g}" if abs(m) > cut else "")
         for m in scores

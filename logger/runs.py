@@ -18,13 +18,12 @@ from __future__ import annotations
 
 import json
 import math
-from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
-from .columns import (RECORDING_FILE, SAMPLES_COLUMNS, SAMPLES_FILE, SEATINGS_COLUMNS, SEATINGS_FILE,
+from .columns import (Column, RECORDING_FILE, SAMPLES_COLUMNS, SAMPLES_FILE, SEATINGS_COLUMNS, SEATINGS_FILE,
                       SETTINGS_FILE, SUMMARY_FILE)
 from .errors import UserError
 from .units import check_unit

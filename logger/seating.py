@@ -87,6 +87,7 @@ class SeatingDetector:
         self.count = 0
         self._t: list[float] = []  # samples since the anchor
         self._v: list[float] = []
+        self._sum = 0.0  # of self._v while settling
         self._centre = math.nan
         self._last_t = -math.inf
         self._last_v = math.nan
@@ -141,9 +142,12 @@ class SeatingDetector:
         oriented = self.sign * value_mm
         if oriented < self._most_out:
             self._most_out = oriented
-        if self._t and -self._band <= value_mm - self._v[0] <= self._band:
+        # "holding" is judged against the mean since the anchor, so noise of a count or two either
+        # side of the level does not restart it; a settling transient drifts out of the band
+        if self._t and -self._band <= value_mm - self._sum / len(self._v) <= self._band:
             if not self._resting:
                 self._append(t_s, value_mm)
+                self._sum += value_mm
                 # near the stop it is the spindle running out, not a placement settling
                 self.state = SETTLING if oriented - self._most_out >= self._lift else LIFTED
                 if t_s - self._t[0] >= self.s.settle_s:
@@ -191,6 +195,7 @@ class SeatingDetector:
     def _restart(self, t_s: float, value_mm: float) -> None:
         """A reading that moved: it becomes the anchor a new seating may grow from."""
         self._t, self._v = [t_s], [value_mm]
+        self._sum = value_mm
         self.state = LIFTED
         self._resting = False
         self.current_index = None
@@ -212,11 +217,13 @@ class SeatingDetector:
     def _hold_reached(self) -> None:
         self._ct, self._cv = [], []  # a hold, either way: the rough-rest watch starts afresh after it
         held = float(np.mean(self._v))
+        self._sum = sum(self._v)
         if self.sign * held - self._most_out < self.s.lift_mm:
             # reached by running out (or nothing seen before it): the spindle at its stop
             self._resting = True
             self.state = LIFTED
             self._t, self._v = self._t[:1], self._v[:1]
+            self._sum = self._v[0]
             return
         self.state = SEATED
         self.current_index = self.count

@@ -11,7 +11,7 @@ and replay therefore give identical results for the same stream.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 from scipy import stats

@@ -44,10 +44,6 @@ def settings_for(profile):
     return RunSettings(DetectorSettings.for_step(profile.indicator.resolution_mm), AnalysisSettings())
 
 
-def seated_windows(run):
-    return [s for s in run.truth["seatings"]]
-
-
 def test_capture_equals_replay_and_survives_a_replug(tmp_path):
     # unplugged while the instrument is lifted, between the 4th and 5th seating
     run = short_session(surface_seatings=5, lifted_s=1.0, disconnect_at_s=11.85, disconnect_for_s=0.6)
@@ -55,7 +51,7 @@ def test_capture_equals_replay_and_survives_a_replug(tmp_path):
     link = tmp_path / "ttyINDICATOR"  # a udev-style symlink the capture names; re-pointed on replug
     out = tmp_path / "cap"
     log = io.StringIO()
-    with PtyServer(run, link_path=str(link)) as server:
+    with PtyServer(run, link_path=str(link)):
         summary = capture(str(link), profile, settings_for(profile), out, view=PlainLog(profile.unit, log),
                           cues=False, duration_s=run.duration_s + 1.0, wait_s=5)
     assert len(summary["gaps"]) == 1 and "# gap " in (out / "stream.rec").read_text()
@@ -152,8 +148,8 @@ def test_an_indicator_that_answers_only_when_asked(tmp_path):
     assert "# poll: b'?\\r' every 0.05 s" in (tmp_path / "p" / "stream.rec").read_text()  # settings in the header
 
 
-def test_a_streaming_virtual_indicator_ignores_requests():
-    # without `poll` the server streams on its own schedule whatever the client sends
+def test_the_poll_request_is_decoded_from_the_scenario():
+    # no `poll`: a streaming indicator (no request); with it, backslash escapes decoded as on the command line
     assert short_session().scenario.poll_request == b""
     assert short_session(poll="?\\r").scenario.poll_request == b"?\r"
 

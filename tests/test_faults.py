@@ -42,7 +42,6 @@ from logger.capture import _Stop, capture
 from logger.decode import Decoder, LineSplitter
 from logger.liveview import PlainLog
 from logger.options import run_settings_from
-from logger.profile import load_profile
 from logger.recording import RecWriter
 from logger.replay import replay_file
 

@@ -13,7 +13,7 @@ from logger import outliers
 
 def test_modified_z_constant_is_the_normal_quartile():
     # Iglewicz & Hoaglin (1993): M = 0.6745 (x - median) / MAD, 0.6745 = Phi^-1(0.75) (scipy.stats.norm)
-    assert math.isclose(stats.norm.ppf(0.75), 0.6745, abs_tol=5e-5)
+    assert math.isclose(outliers.MAD_TO_Z, stats.norm.ppf(0.75), abs_tol=5e-5)
 
 
 @settings(max_examples=60, deadline=None)

@@ -7,7 +7,7 @@ import pytest
 
 from logger import geometry
 from logger.errors import UserError
-from logger.profile import DEFAULT_U_MM, load_profile, parse_profile
+from logger.profile import DEFAULT_U_MM, load_profile
 
 PROFILES = Path(__file__).resolve().parents[1] / "logger" / "profiles"
 

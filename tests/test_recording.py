@@ -6,7 +6,6 @@ and the backslash become \\xHH, lower-case hex) rather than taken from the code.
 
 from __future__ import annotations
 
-import math
 
 import pytest
 from hypothesis import given, settings
