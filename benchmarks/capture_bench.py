@@ -26,7 +26,7 @@ import psutil
 from .feeder import Pacer, PtyDevice, session
 
 ROOT = Path(__file__).resolve().parents[1]
-PROFILE = ROOT / "logger" / "profiles" / "example-three-ball.toml"
+PROFILE = ROOT / "logger" / "config" / "profiles" / "example-three-ball.toml"
 RATES = (1_000, 2_000, 5_000, 10_000, 20_000, 50_000)
 RATE_S = 3.0
 CPU_RATE, CPU_S = 100.0, 20.0

@@ -15,7 +15,7 @@ import sys
 import atheris
 
 with atheris.instrument_imports():
-    from logger.decode import Decoder, LineSplitter
+    from logger.formats.decode import Decoder, LineSplitter
 
 
 def one_input(data: bytes) -> None:

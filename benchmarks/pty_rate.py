@@ -10,10 +10,10 @@ from __future__ import annotations
 
 import time
 
-from logger.decode import Decoder, LineSplitter
+from logger.formats.decode import Decoder, LineSplitter
 from logger.errors import DeviceGone
 from logger.simulator import PtyServer, load_scenario, simulate
-from logger.source import SerialSource
+from logger.transport.serial_source import SerialSource
 
 
 def measure(rate_hz: float, seconds: float = 3.0) -> tuple[bool, int, float]:

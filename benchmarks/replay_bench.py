@@ -1,7 +1,7 @@
 """Replay throughput against a bare parse loop, and replay peak memory against run length.
 
 The bare loop is the least any replay must do: read each record, split time
-from text, unescape it (logger.recording.unescape), match the same reading
+from text, unescape it (logger.formats.recording.unescape), match the same reading
 regex as the decoder and make a float.  The replay does all that plus
 seating detection, the analysis and the run folder.
 """
@@ -13,22 +13,22 @@ import sys
 import time
 from pathlib import Path
 
-from logger.decode import _READING
-from logger.profile import load_profile
-from logger.recording import RecWriter, unescape
+from logger.formats.decode import _READING
+from logger.config.profile import load_profile
+from logger.formats.recording import RecWriter, unescape
 
 from .feeder import session
 
 ROOT = Path(__file__).resolve().parents[1]
-PROFILE = ROOT / "logger" / "profiles" / "example-three-ball.toml"
+PROFILE = ROOT / "logger" / "config" / "profiles" / "example-three-ball.toml"
 N_SEATINGS = 2500  # 4 s per seating at 100 Hz: about 1,000,000 lines
 LENGTHS = (250_000, 500_000, 1_000_000)
 
 _CHILD = """
 import resource, sys
-from logger.options import run_settings_from
-from logger.profile import load_profile
-from logger.replay import replay_file
+from logger.cli.options import run_settings_from
+from logger.config.profile import load_profile
+from logger.live.replay import replay_file
 p = load_profile(sys.argv[2])
 kw = dict(label="", rejection="modified-z", z_cut=3.5, flat_first=None, phase_gap=None, max_spread=None, settle=None,
           band=None, lift=None, target_radius=None, focal_length=None, focal_ratio=None, diameter=None)
@@ -76,8 +76,8 @@ def bare_loop(path: Path) -> int:
 
 
 def run(tmp: Path) -> list[dict]:
-    from logger.options import run_settings_from
-    from logger.replay import replay_file
+    from logger.cli.options import run_settings_from
+    from logger.live.replay import replay_file
 
     print("replay: writing an invented ~1,000,000-line recording ...", flush=True)
     rec = tmp / "long.rec"

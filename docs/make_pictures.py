@@ -17,17 +17,17 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
-from logger.history import write_history  # noqa: E402
-from logger.pipeline import RunSettings  # noqa: E402
-from logger.profile import load_profile  # noqa: E402
-from logger.replay import replay_file  # noqa: E402
-from logger.report import write_report  # noqa: E402
-from logger.seating import DetectorSettings  # noqa: E402
-from logger.session import AnalysisSettings  # noqa: E402
+from logger.reports.history import write_history  # noqa: E402
+from logger.live.pipeline import RunSettings  # noqa: E402
+from logger.config.profile import load_profile  # noqa: E402
+from logger.live.replay import replay_file  # noqa: E402
+from logger.reports.report import write_report  # noqa: E402
+from logger.analysis.seating import DetectorSettings  # noqa: E402
+from logger.analysis.session import AnalysisSettings  # noqa: E402
 from logger.simulator import load_scenario, simulate, write_recording  # noqa: E402
 
 os.chdir(ROOT)  # paths in the pictures are then relative to the repository, as a user would type them
-PROFILE = load_profile(Path("logger") / "profiles" / "example-three-ball.toml")
+PROFILE = load_profile(Path("logger") / "config" / "profiles" / "example-three-ball.toml")
 
 
 def settings(label: str) -> RunSettings:

@@ -13,7 +13,7 @@ __all__ = ["__version__", "load_run"]
 def __getattr__(name):
     # load_run pulls in pandas; import it only when somebody asks for it.
     if name == "load_run":
-        from .runs import load_run
+        from logger.run.load import load_run
 
         return load_run
     raise AttributeError(f"module 'logger' has no attribute {name!r}")

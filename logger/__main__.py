@@ -1,3 +1,3 @@
-from .cli import main
+from logger.cli.main import main
 
 main()

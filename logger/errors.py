@@ -5,8 +5,11 @@ class UserError(Exception):
     """Something the user can fix: a bad profile, option, file or port.
 
     The message must name what is wrong and where (file, key, option), in one
-    line, because the command line prints it as it is, without a traceback.
+    line, because the command line prints it as it is, without a traceback,
+    and exits with `exit_status` (2; 3 for a device that never appeared).
     """
+
+    exit_status = 2
 
 
 class DeviceGone(Exception):
@@ -24,3 +27,9 @@ class DeviceNotFound(UserError):
     """
 
     absent = False
+
+
+def cannot_write(path, exc: OSError, kept: str = "") -> UserError:
+    """The one message for a file that cannot be written (disk full, read-only, no permission)."""
+    why = exc.strerror or str(exc)
+    return UserError(f"{path}: cannot write ({why})" + (f"; {kept}" if kept else ""))

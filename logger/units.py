@@ -1,6 +1,6 @@
 """Units at the edges: millimetres inside the program, inches only on the way in or out."""
 
-from .errors import UserError
+from logger.errors import UserError
 
 MM_PER_INCH = 25.4  # exact, by definition (international inch, 1959)
 

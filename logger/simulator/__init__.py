@@ -6,9 +6,9 @@ that stream in real time on a pseudo-terminal or a loopback TCP port, so
 capture, the demo and the tests meet the same bytes a real indicator sends.
 """
 
-from .model import SimRun, simulate, write_recording
-from .scenario import Scenario, load_scenario, scenario_names
-from .serve import PtyServer, TcpServer
+from logger.simulator.model import SimRun, simulate, write_recording
+from logger.simulator.scenario import Scenario, load_scenario, scenario_names
+from logger.simulator.serve import PtyServer, TcpServer
 
 __all__ = ["Scenario", "SimRun", "PtyServer", "TcpServer", "load_scenario", "scenario_names", "simulate",
            "write_recording"]

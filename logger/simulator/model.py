@@ -3,7 +3,7 @@
 A session is a sequence of seatings, each on the reference flat or on the
 sphere, with the instrument lifted in between (the spindle then runs out to
 its stop).  What the probe reads on the sphere comes from the exact
-ball-on-sphere geometry, `logger.geometry.probe_sagitta_mm`, with the
+ball-on-sphere geometry, `logger.analysis.geometry.probe_sagitta_mm`, with the
 profile's contact circle and foot radius; nothing here approximates it.
 
 Sign convention: `disp` is how far the spindle is pushed IN relative to
@@ -29,11 +29,11 @@ from pathlib import Path
 
 import numpy as np
 
-from .. import geometry
-from ..errors import UserError
-from ..recording import RecWriter, gap_comment
-from ..units import from_mm, to_mm
-from .scenario import ENDINGS, Scenario
+from logger.analysis import geometry
+from logger.errors import UserError
+from logger.formats.recording import RecWriter, gap_comment
+from logger.units import from_mm, to_mm
+from logger.simulator.scenario import ENDINGS, Scenario
 
 CHUNK = 4096  # samples computed per numpy step
 

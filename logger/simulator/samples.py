@@ -10,8 +10,8 @@ from __future__ import annotations
 import sys
 from pathlib import Path
 
-from .model import simulate, write_recording
-from .scenario import load_scenario
+from logger.simulator.model import simulate, write_recording
+from logger.simulator.scenario import load_scenario
 
 SAMPLES = {
     "mirror-150-f8-rough": "a 150 mm f/8 mirror in rough grinding (concave R 2400 mm), 10 lines/s, mm, CRLF",

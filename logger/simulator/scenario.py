@@ -15,12 +15,11 @@ import tomllib
 from dataclasses import dataclass
 from pathlib import Path
 
-from ..errors import UserError
-from ..profile import Profile, load_profile
-from ..units import check_unit, to_mm
+from logger.errors import UserError
+from logger.config.profile import PROFILE_DIR, Profile, load_profile
+from logger.units import check_unit, to_mm
 
-SCENARIO_DIR = Path(__file__).resolve().parent.parent / "scenarios"
-PROFILE_DIR = Path(__file__).resolve().parent.parent / "profiles"
+SCENARIO_DIR = Path(__file__).resolve().parent / "scenarios"
 DEFAULT_SCENARIO = "mirror-150-f8-rough"
 
 ENDINGS = {"LF": b"\n", "CR": b"\r", "CRLF": b"\r\n"}
@@ -251,7 +250,7 @@ def _find_profile(ref: str, base_dir: Path, source: str) -> Profile:
     for cand in (base_dir / ref, PROFILE_DIR / ref, PROFILE_DIR / f"{ref}.toml"):
         if cand.is_file():
             return load_profile(cand)
-    raise UserError(f"{source}: profile {ref!r} not found (next to the scenario or in logger/profiles)")
+    raise UserError(f"{source}: profile {ref!r} not found (next to the scenario or among the shipped profiles)")
 
 
 def scenario_names() -> list[str]:
@@ -259,7 +258,7 @@ def scenario_names() -> list[str]:
 
 
 def load_scenario(path_or_name: str | Path | None = None) -> Scenario:
-    """A scenario from a TOML file, or by name (a file stem in logger/scenarios)."""
+    """A scenario from a TOML file, or by name (a file stem in logger/simulator/scenarios)."""
     ref = DEFAULT_SCENARIO if path_or_name is None else path_or_name
     p = Path(ref)
     if not p.is_file():

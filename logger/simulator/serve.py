@@ -19,7 +19,7 @@ import threading
 import time
 import tty
 
-from .model import SimRun
+from logger.simulator.model import SimRun
 
 _SLICE_S = 0.05  # longest sleep between checks of the stop flag and the client
 

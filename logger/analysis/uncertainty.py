@@ -1,0 +1,286 @@
+"""Uncertainty of the radius per the GUM (JCGM 100:2008), checked by Monte Carlo (JCGM 101:2008).
+
+A `Budget` is a list of `Component`s, each the standard uncertainty of one
+input with its sensitivity coefficient.  They combine in quadrature (GUM
+5.1.2, inputs taken as uncorrelated), the effective degrees of freedom come
+from the Welch-Satterthwaite formula (GUM G.4.1), and the expanded
+uncertainty uses the Student t factor for the coverage probability (GUM
+G.3, G.4).  `radius_budget` builds the budget of a radius from a sagitta and
+a spherometer; `monte_carlo_radius` propagates the same inputs through the
+exact, non-linear relation so the tests can confirm the linearised budget.
+Every length is in millimetres.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Sequence
+
+import numpy as np
+from scipy import stats
+
+from logger.analysis import geometry
+from logger.errors import UserError
+from logger.units import from_mm
+
+DISTRIBUTIONS = ("normal", "rectangular", "t")
+
+# Labels for the spherometer's inputs (keys of Spherometer.params_mm).
+_INPUT_LABELS = {
+    "a": "leg spacing a",
+    "b": "leg spacing b",
+    "c": "leg spacing c",
+    **{f"{how}_{x}": f"caliper reading {x} ({how} the balls)" for how in ("outside", "inside") for x in "abc"},
+    "ball_diameter": "ball diameter",
+    "inner_diameter": "ring inner diameter",
+    "outer_diameter": "ring outer diameter",
+    "edge_radius": "ring edge radius",
+    "ring_radius": "ring radius",
+}
+
+
+@dataclass(frozen=True)
+class Component:
+    """One input's standard uncertainty and how strongly the result depends on it."""
+
+    name: str
+    u: float  # standard uncertainty of the input quantity (mm)
+    sensitivity: float = 1.0  # dY/dx
+    dof: float = math.inf  # degrees of freedom
+    kind: str = "B"  # "A" (statistics of repeated seatings) or "B" (anything else)
+    distribution: str = "normal"  # for the Monte Carlo: "normal", "rectangular" or "t"
+
+    def __post_init__(self):
+        if not (math.isfinite(self.u) and self.u >= 0):
+            raise ValueError(f"{self.name}: standard uncertainty must be finite and >= 0, got {self.u!r}")
+        if not (self.dof > 0):
+            raise ValueError(f"{self.name}: degrees of freedom must be positive, got {self.dof!r}")
+        if self.kind not in ("A", "B"):
+            raise ValueError(f"{self.name}: kind must be 'A' or 'B', got {self.kind!r}")
+        if self.distribution not in DISTRIBUTIONS:
+            raise ValueError(f"{self.name}: distribution must be one of {DISTRIBUTIONS}, got {self.distribution!r}")
+        if self.distribution == "t" and not math.isfinite(self.dof):
+            raise ValueError(f"{self.name}: a t distribution needs finite degrees of freedom")
+
+    @property
+    def contribution(self) -> float:
+        """|c_i| u(x_i): this input's share of u_c (GUM 5.1.3)."""
+        return abs(self.sensitivity) * self.u
+
+
+def resolution_component(name: str, resolution_mm: float) -> Component:
+    """One reading's quantisation: rectangular of full width q, u = q / sqrt(12) (GUM F.2.2.1)."""
+    return Component(name, resolution_mm / math.sqrt(12.0), distribution="rectangular")
+
+
+def scatter_component(scatter_mm: float, n: int, name: str = "seating scatter") -> Component:
+    """Type A: the standard uncertainty of a mean of n seatings, s / sqrt(n), with n - 1 dof (GUM 4.2.3, G.3.3)."""
+    if n < 2:
+        raise UserError(f"a scatter needs at least 2 seatings, got {n}")
+    return Component(name, scatter_mm / math.sqrt(n), dof=n - 1, kind="A", distribution="t")
+
+
+def reading_components(resolution_mm: float, scatter_mm: float | None = None, n: int | None = None,
+                       zero_scatter_mm: float | None = None) -> list[Component]:
+    """The sagitta's own terms: the seating scatter of a mean of n (when known) and the indicator's step.
+
+    The sagitta is a surface reading minus a zero reading, each quantised.
+    Averaging beats the step only when the seatings scatter by at least
+    about one count; then the scatter already holds the quantisation and that
+    reading's resolution term is left out.  Below one count (or with no
+    scatter known) it stays.  The surface term follows `scatter_mm`; the zero
+    term follows `zero_scatter_mm` (the flat seatings' own scatter) when it is
+    given, else the same `scatter_mm`.
+    """
+    comps = [] if scatter_mm is None else [scatter_component(scatter_mm, n)]
+    zero_sd = scatter_mm if zero_scatter_mm is None else zero_scatter_mm
+    if scatter_mm is None or scatter_mm < resolution_mm:
+        comps.append(resolution_component("resolution, surface reading", resolution_mm))
+    if zero_sd is None or zero_sd < resolution_mm:
+        comps.append(resolution_component("resolution, zero reading", resolution_mm))
+    return comps
+
+
+def coverage_factor(p: float, dof: float) -> float:
+    """k such that +-k u_c covers p: Student t at dof, the normal quantile at infinity (GUM G.3.4)."""
+    if not 0 < p < 1:
+        raise ValueError(f"coverage probability must be in (0, 1), got {p!r}")
+    q = 0.5 + p / 2.0
+    return float(stats.norm.ppf(q) if math.isinf(dof) else stats.t.ppf(q, dof))
+
+
+@dataclass(frozen=True)
+class Budget:
+    """An uncertainty budget: the result, its components, and the coverage wanted."""
+
+    quantity: str
+    value: float
+    components: tuple[Component, ...]
+    p: float = 0.9545
+
+    @property
+    def u_c(self) -> float:
+        """Combined standard uncertainty, uncorrelated inputs (GUM eq. 10)."""
+        return math.sqrt(math.fsum(c.contribution**2 for c in self.components))
+
+    @property
+    def nu_eff(self) -> float:
+        """Welch-Satterthwaite effective degrees of freedom (GUM eq. G.2b)."""
+        denom = math.fsum(c.contribution**4 / c.dof for c in self.components if c.contribution > 0)
+        u_c = self.u_c
+        return math.inf if denom == 0 or u_c == 0 else u_c**4 / denom
+
+    @property
+    def k(self) -> float:
+        return coverage_factor(self.p, self.nu_eff)
+
+    @property
+    def U(self) -> float:
+        """Expanded uncertainty k u_c (GUM 6.2)."""
+        return self.k * self.u_c
+
+    def table(self, unit: str = "mm") -> str:
+        """A budget a user can print; lengths in `unit`, sensitivities are unit-free (length/length)."""
+        f = lambda v: from_mm(v, unit)  # noqa: E731
+        rows = [("component", "type", "distribution", f"u(x) [{unit}]", "c", f"|c| u(x) [{unit}]", "dof")]
+        for c in self.components:
+            rows.append((c.name, c.kind, c.distribution, f"{f(c.u):.4g}", f"{c.sensitivity:.5g}",
+                         f"{f(c.contribution):.4g}", _dof_text(c.dof)))
+        widths = [max(len(r[i]) for r in rows) for i in range(len(rows[0]))]
+        lines = [f"Uncertainty budget: {self.quantity} = {f(self.value):.6g} {unit}"]
+        for j, r in enumerate(rows):
+            lines.append("  ".join(x.ljust(w) if i < 3 else x.rjust(w) for i, (x, w) in enumerate(zip(r, widths))))
+            if j == 0:
+                lines.append("  ".join("-" * w for w in widths))
+        lines += [
+            f"combined standard uncertainty u_c = {f(self.u_c):.4g} {unit}",
+            f"effective degrees of freedom (Welch-Satterthwaite) = {_dof_text(self.nu_eff)}",
+            f"coverage factor k = {self.k:.3f} (p = {100 * self.p:.2f} %)",
+            f"expanded uncertainty U = {f(self.U):.4g} {unit}",
+        ]
+        return "\n".join(lines)
+
+    def as_dict(self, unit: str = "mm") -> dict:
+        """JSON-safe (no NaN or inf: infinite dof is None); length keys carry the unit as a suffix."""
+        sfx = f"_{unit}"
+        return {
+            "quantity": self.quantity,
+            "value" + sfx: from_mm(self.value, unit),
+            "u_c" + sfx: from_mm(self.u_c, unit),
+            "U" + sfx: from_mm(self.U, unit),
+            "k": self.k,
+            "p": self.p,
+            "nu_eff": _dof_json(self.nu_eff),
+            "components": [
+                {
+                    "name": c.name,
+                    "kind": c.kind,
+                    "distribution": c.distribution,
+                    "u" + sfx: from_mm(c.u, unit),
+                    "sensitivity": c.sensitivity,
+                    "contribution" + sfx: from_mm(c.contribution, unit),
+                    "dof": _dof_json(c.dof),
+                }
+                for c in self.components
+            ],
+        }
+
+
+def _dof_text(dof: float) -> str:
+    return "inf" if math.isinf(dof) else f"{dof:.1f}"
+
+
+def _dof_json(dof: float):
+    return None if math.isinf(dof) else dof
+
+
+def _input_sensitivity(spherometer, surface: str, sagitta_mm: float, name: str) -> float:
+    """dR/dx for one spherometer input by a central difference through contact_mm.
+
+    Going through contact_mm means an input that enters both the ring
+    radius and the foot radius (a ring's edge radius) is handled right.
+    """
+    x = spherometer.params_mm[name]
+    h = 1e-6 * max(abs(x), 1.0)
+
+    def R(value):
+        params = dict(spherometer.params_mm, **{name: value})
+        return geometry.radius_from_sagitta_mm(sagitta_mm, *spherometer.contact_mm(surface, params), surface)
+
+    return (R(x + h) - R(x - h)) / (2.0 * h)
+
+
+def radius_budget(spherometer, surface: str, sagitta_mm: float, sagitta_components: Sequence[Component]) -> Budget:
+    """The GUM budget of the radius of curvature from one sagitta.
+
+    `sagitta_components` are the uncertainties of the sagitta (seating
+    scatter, resolution, zero, ...), each with its sensitivity dS/dx
+    (usually 1); they are scaled by dR/ds.  One Type B component is added per
+    spherometer input with a non-zero standard uncertainty.
+    """
+    ring_mm, foot_mm = spherometer.contact_mm(surface)
+    value = geometry.radius_from_sagitta_mm(sagitta_mm, ring_mm, foot_mm, surface)
+    dR_ds = geometry.dradius_dsagitta(sagitta_mm, ring_mm)
+    comps = [
+        Component(c.name, c.u, c.sensitivity * dR_ds, c.dof, c.kind, c.distribution) for c in sagitta_components
+    ]
+    for name, u in spherometer.u_mm.items():
+        if u > 0:
+            comps.append(
+                Component(_INPUT_LABELS.get(name, name), u, _input_sensitivity(spherometer, surface, sagitta_mm, name))
+            )
+    return Budget("radius of curvature", value, tuple(comps))
+
+
+def _draw(rng: np.random.Generator, c: Component, n: int) -> np.ndarray:
+    """n draws of an input's error, zero mean, per JCGM 101:2008 6.4."""
+    if c.distribution == "rectangular":  # 6.4.2: half-width a = sqrt(3) u
+        a = math.sqrt(3.0) * c.u
+        return rng.uniform(-a, a, n)
+    if c.distribution == "t":  # 6.4.9: scaled and shifted t, scale s/sqrt(n) = u, nu = n - 1
+        return c.u * rng.standard_t(c.dof, n)
+    return rng.normal(0.0, c.u, n)  # 6.4.7
+
+
+def monte_carlo_radius(
+    spherometer, surface: str, sagitta_mm: float, sagitta_components: Sequence[Component], n: int = 200_000, seed: int = 0
+) -> np.ndarray:
+    """Samples of R from the exact relation with every input drawn from its distribution (JCGM 101:2008).
+
+    Sagitta errors enter with their own sensitivities dS/dx; the spherometer's
+    inputs are drawn normal with their standard uncertainties.
+    """
+    if n < 1:
+        raise UserError(f"Monte Carlo needs at least one trial, got {n}")
+    rng = np.random.default_rng(seed)
+    s = np.full(n, float(sagitta_mm))
+    for c in sagitta_components:
+        s = s + c.sensitivity * _draw(rng, c, n)
+    params = {
+        name: x + (rng.normal(0.0, spherometer.u_mm.get(name, 0.0), n) if spherometer.u_mm.get(name, 0.0) > 0 else 0.0)
+        for name, x in spherometer.params_mm.items()
+    }
+    ring_mm, foot_mm = spherometer.contact_mm(surface, params)
+    return np.broadcast_to(geometry.radius_from_sagitta_mm(s, ring_mm, foot_mm, surface), (n,)).copy()
+
+
+def seatings_needed(
+    target_u_radius_mm: float, scatter_mm: float, sagitta_mm: float, ring_radius_mm: float, other_u_radius_mm: float = 0.0
+) -> int | None:
+    """Seatings n on the surface so that the radius's standard uncertainty reaches the target.
+
+    u(R)^2 = (dR/ds * scatter / sqrt(n))^2 + other^2 <= target^2, the
+    scatter term being the Type A standard uncertainty of a mean (GUM 4.2.3).
+    None when the other terms alone already reach the target.
+    """
+    if not (target_u_radius_mm > 0):
+        raise UserError(f"the wanted radius uncertainty must be positive, got {target_u_radius_mm!r}")
+    if not (scatter_mm >= 0):
+        raise UserError(f"the seating scatter must be zero or positive, got {scatter_mm!r}")
+    room = target_u_radius_mm**2 - other_u_radius_mm**2
+    if room <= 0:
+        return None
+    per_seating = (geometry.dradius_dsagitta(sagitta_mm, ring_radius_mm) * scatter_mm) ** 2
+    # The tiny allowance keeps an exact integer ratio from rounding up by one.
+    return max(1, math.ceil(per_seating / room * (1.0 - 1e-12)))

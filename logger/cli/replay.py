@@ -1,0 +1,28 @@
+"""`saglog replay`: the whole analysis again on a recording."""
+
+from __future__ import annotations
+
+import click
+
+from logger.cli.options import POSITIVE, analysis_options
+from logger.live.present import result_lines
+from logger.live.replay import replay_file
+
+
+@click.command("replay")
+@click.argument("recording", type=click.Path(dir_okay=False))
+@click.option("--out", "out_dir", required=True, type=click.Path(file_okay=False), help="Run folder to write.")
+@click.option("--rate", "rate_hz", type=POSITIVE, default=None, help="Lines per second of a plain capture (no timestamps).")
+@click.option("--force", is_flag=True, help="Overwrite a run folder that already holds a run.")
+@analysis_options
+def replay_cmd(recording, out_dir, rate_hz, force, profile, run_settings):
+    """Run the whole analysis on a recording (REC) and write the run folder.
+
+    Use it to re-analyse an old run with other thresholds or another
+    rejection method: the recording is never changed.
+    """
+    summary = replay_file(recording, profile, run_settings, out_dir, rate_hz, force)
+    for line in result_lines(summary):
+        click.echo(line)
+    click.echo(f"run folder: {out_dir}")
+

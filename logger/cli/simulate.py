@@ -1,0 +1,67 @@
+"""`saglog simulate`: the virtual indicator on a pty, a TCP port, or into a recording."""
+
+from __future__ import annotations
+
+import signal
+import sys
+
+import click
+
+from logger.cli.options import POSITIVE
+from logger.errors import UserError, cannot_write
+from logger.simulator.model import simulate, write_recording
+from logger.simulator.scenario import load_scenario
+from logger.simulator.serve import PtyServer, TcpServer
+
+
+@click.command("simulate")
+@click.option("--pty", "use_pty", is_flag=True, help="Serve on a pseudo-terminal; prints its path first.")
+@click.option("--tcp", "tcp_port", type=int, default=None, help="Serve on 127.0.0.1:PORT (0: any free port).")
+@click.option("--rec", "rec_path", type=click.Path(dir_okay=False), default=None,
+              help="Write the whole run to a .rec recording at once (no real time).")
+@click.option("--scenario", default=None, help="Scenario name (shipped with saglog) or TOML file.")
+@click.option("--seed", type=int, default=None, help="Random seed (default: the scenario's).")
+@click.option("--rate", type=POSITIVE, default=None, help="Lines per second (overrides the scenario).")
+@click.option("--truth", "truth_path", type=click.Path(dir_okay=False), default=None,
+              help="Write the run's truth (radius, seatings) as JSON.")
+@click.option("--speed", type=POSITIVE, default=1.0, show_default=True, help="Time factor (2: twice as fast).")
+@click.option("--link", "link_path", default=None, help="Also make a symlink to the pty at this path.")
+def simulate_cmd(use_pty, tcp_port, rec_path, scenario, seed, rate, truth_path, speed, link_path):
+    """A virtual dial indicator on a spherometer, streaming an invented session.
+
+    With --pty, open the printed device path with saglog capture or with any
+    serial terminal program (any baud rate; the pty ignores it).
+    """
+    if sum(x is not None and x is not False for x in (use_pty or None, tcp_port, rec_path)) != 1:
+        raise UserError("simulate: give exactly one of --pty, --tcp PORT or --rec FILE")
+    sc = load_scenario(scenario)
+    if rate is not None:
+        sc = sc.with_overrides(rate_hz=rate)
+    run = simulate(sc, seed)
+    if truth_path:
+        try:
+            run.write_truth(truth_path)
+        except OSError as exc:
+            raise cannot_write(truth_path, exc) from None
+    if rec_path:
+        write_recording(run, rec_path)
+        click.echo(f"{rec_path}: {run.truth['duration_s']:g} s of scenario {sc.name!r}, seed {run.seed}")
+        return
+    try:
+        server = PtyServer(run, speed=speed, link_path=link_path) if use_pty else TcpServer(run, tcp_port, speed)
+    except OSError as exc:
+        raise UserError(f"simulate: cannot serve ({exc.strerror or exc})") from None
+    click.echo(server.path if use_pty else server.url)
+    sys.stdout.flush()
+    old = signal.signal(signal.SIGTERM, lambda *_: server._stop.set())
+    try:
+        server.start()
+        while not server.wait(0.2):
+            pass
+    except KeyboardInterrupt:
+        pass
+    finally:
+        server.stop()
+        signal.signal(signal.SIGTERM, old)
+    click.echo(f"served {server.lines_sent} lines ({server.lines_dropped} dropped while no client was connected)",
+               err=True)

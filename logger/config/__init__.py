@@ -1,0 +1,1 @@
+"""Configuration: spherometer profiles (TOML) and the shipped examples in `profiles/`."""

@@ -1,0 +1,258 @@
+"""Spherometer profiles: a small TOML file describing the instrument.
+
+Every length in the file is in its top-level `unit`; everything here is
+converted to millimetres at once.  Unknown or misspelt keys are errors (a
+silently ignored typo in a leg spacing would give a wrong radius).
+"""
+
+from __future__ import annotations
+
+import difflib
+import math
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from logger.analysis import geometry
+from logger.errors import UserError
+from logger.units import check_unit, to_mm
+
+PROFILE_DIR = Path(__file__).resolve().parent / "profiles"  # the shipped examples
+
+KINDS = ("three-ball", "ring", "calibrated")
+SENSES = ("in-positive", "out-positive")
+
+# Default standard uncertainties (k = 1), in millimetres, used when the
+# profile's [uncertainty] table does not state them.  Common practice, from
+# memory: a 150 mm digital caliper is specified to about +-0.02 mm; taken as a
+# rectangular half-width that is 0.02/sqrt(3) = 0.0115 mm.  A rounded ring
+# edge is hard to gauge, so its radius gets a larger default.  A calibrated
+# ring radius inherits the uncertainty of its calibration, which the user
+# should state; the default is a caliper-like guess.
+DEFAULT_U_MM = {
+    "leg_spacing": 0.02 / math.sqrt(3),
+    "ball_diameter": 0.02 / math.sqrt(3),
+    "ring_diameter": 0.02 / math.sqrt(3),
+    "edge_radius": 0.025,
+    "ring_radius": 0.01,
+}
+
+_TOP_KEYS = {"unit", "name", "spherometer", "indicator", "uncertainty"}
+_SPH_KEYS = {
+    "three-ball": ({"kind", "ball_diameter"}, {"leg_spacings", "leg_readings", "readings"}),
+    "ring": ({"kind", "inner_diameter", "outer_diameter"}, {"edge_radius"}),
+    "calibrated": ({"kind", "ring_radius"}, {"ball_diameter"}),
+}
+_IND_KEYS = ({"resolution"}, {"sense", "unit"})
+_U_KEYS = set(DEFAULT_U_MM)
+
+
+@dataclass(frozen=True)
+class Indicator:
+    resolution_mm: float
+    sense: str  # "in-positive" or "out-positive"
+    unit: str  # unit assumed for stream lines that carry none
+
+    @property
+    def sign(self) -> int:
+        """+1 when the reading grows as the spindle is pushed in."""
+        return 1 if self.sense == "in-positive" else -1
+
+
+@dataclass(frozen=True)
+class Spherometer:
+    """The instrument's contact geometry.
+
+    `params_mm` holds the measured inputs (names such as 'a', 'b', 'c',
+    'ball_diameter'), `u_mm` their standard uncertainties.  `contact_mm`
+    maps any set of inputs to (ring radius, foot radius) for a surface, so
+    the uncertainty budget and the Monte Carlo check can vary each input.
+    """
+
+    kind: str
+    params_mm: dict = field(default_factory=dict)
+    u_mm: dict = field(default_factory=dict)
+
+    def contact_mm(self, surface: str, params: dict | None = None) -> tuple[float, float]:
+        p = self.params_mm if params is None else params
+        if self.kind == "three-ball":
+            return geometry.circumradius_mm(*self.legs_mm(p)), p["ball_diameter"] / 2.0
+        if self.kind == "ring":
+            e = p["edge_radius"]
+            if surface == "concave":  # bears on the outer edge
+                return p["outer_diameter"] / 2.0 - e, e
+            return p["inner_diameter"] / 2.0 + e, e  # convex: on the inner edge
+        return p["ring_radius"], p["ball_diameter"] / 2.0  # calibrated
+
+    def legs_mm(self, params: dict | None = None) -> tuple[float, float, float]:
+        """Centre-to-centre leg spacings, from the spacings or from caliper readings over the balls.
+
+        Outside-to-outside of two balls = centre distance + one ball diameter,
+        inside-to-inside = centre distance - one (common practice).  Kept as
+        readings, the legs share the ball's error, which the budget and the
+        Monte Carlo check then see, because they vary the readings and the ball.
+        """
+        p = self.params_mm if params is None else params
+        if "a" in p:
+            return p["a"], p["b"], p["c"]
+        d = p["ball_diameter"]
+        if "outside_a" in p:
+            return p["outside_a"] - d, p["outside_b"] - d, p["outside_c"] - d
+        return p["inside_a"] + d, p["inside_b"] + d, p["inside_c"] + d
+
+    def describe(self, unit: str = "mm") -> str:
+        from logger.units import from_mm
+
+        parts = ", ".join(f"{k} {from_mm(v, unit):g}" for k, v in self.params_mm.items())
+        return f"{self.kind} ({parts} {unit})"
+
+
+@dataclass(frozen=True)
+class Profile:
+    unit: str  # the file's unit, used to show results to the user
+    spherometer: Spherometer
+    indicator: Indicator
+    name: str = ""
+    source: str = ""  # where it was read from, for messages
+
+    def contact_mm(self, surface: str) -> tuple[float, float]:
+        return self.spherometer.contact_mm(surface)
+
+
+def _check_keys(table: dict, required: set, optional: set, where: str) -> None:
+    allowed = required | optional
+    for key in table:
+        if key not in allowed:
+            hint = difflib.get_close_matches(key, sorted(allowed), n=1)
+            tip = f" (did you mean {hint[0]!r}?)" if hint else f" (allowed: {', '.join(sorted(allowed))})"
+            raise UserError(f"{where}: unknown key {key!r}{tip}")
+    for key in sorted(required):
+        if key not in table:
+            raise UserError(f"{where}: missing key {key!r}")
+
+
+def _length(value, unit: str, where: str, allow_zero: bool = False) -> float:
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+        raise UserError(f"{where}: must be a number, got {value!r}")
+    if value < 0 or (value == 0 and not allow_zero):
+        raise UserError(f"{where}: must be {'zero or ' if allow_zero else ''}positive, got {value!r}")
+    return to_mm(float(value), unit)
+
+
+def parse_profile(data: dict, source: str = "profile") -> Profile:
+    """Build a Profile from parsed TOML; every error names `source` and the key."""
+    if not isinstance(data, dict):
+        raise UserError(f"{source}: not a TOML table")
+    _check_keys(data, {"unit", "spherometer", "indicator"}, _TOP_KEYS - {"unit", "spherometer", "indicator"}, source)
+    unit = check_unit(data["unit"], f"{source}: unit")
+    sph = data["spherometer"]
+    if not isinstance(sph, dict):
+        raise UserError(f"{source}: [spherometer] must be a table")
+    kind = sph.get("kind")
+    if kind not in KINDS:
+        raise UserError(f"{source}: [spherometer] kind must be one of {', '.join(KINDS)}, not {kind!r}")
+    req, opt = _SPH_KEYS[kind]
+    _check_keys(sph, req, opt, f"{source}: [spherometer]")
+    ut = data.get("uncertainty", {})
+    if not isinstance(ut, dict):
+        raise UserError(f"{source}: [uncertainty] must be a table")
+    _check_keys(ut, set(), _U_KEYS, f"{source}: [uncertainty]")
+    u_of = {k: (_length(ut[k], unit, f"{source}: [uncertainty] {k}", allow_zero=True) if k in ut else DEFAULT_U_MM[k])
+            for k in _U_KEYS}
+
+    def L(key, allow_zero=False):
+        return _length(sph[key], unit, f"{source}: [spherometer] {key}", allow_zero)
+
+    params: dict[str, float] = {}
+    u: dict[str, float] = {}
+    if kind == "three-ball":
+        if ("leg_spacings" in sph) == ("leg_readings" in sph):
+            raise UserError(f"{source}: [spherometer] give either leg_spacings (centre to centre) or "
+                            "leg_readings with readings = \"outside\" or \"inside\"")
+        if "leg_readings" in sph:
+            how = sph.get("readings")
+            if how not in ("outside", "inside"):
+                raise UserError(f"{source}: [spherometer] readings must be \"outside\" or \"inside\", not {how!r}")
+            key, names = "leg_readings", [f"{how}_{x}" for x in "abc"]
+        else:
+            if "readings" in sph:
+                raise UserError(f"{source}: [spherometer] readings goes with leg_readings, not leg_spacings")
+            key, names = "leg_spacings", list("abc")
+        legs = sph[key]
+        if not isinstance(legs, list) or len(legs) != 3:
+            raise UserError(f"{source}: [spherometer] {key} must be a list of three lengths")
+        for name, v in zip(names, legs):
+            params[name] = _length(v, unit, f"{source}: [spherometer] {key}", False)
+            u[name] = u_of["leg_spacing"]
+        params["ball_diameter"] = L("ball_diameter", allow_zero=True)
+        u["ball_diameter"] = u_of["ball_diameter"]
+    elif kind == "ring":
+        params["inner_diameter"] = L("inner_diameter")
+        params["outer_diameter"] = L("outer_diameter")
+        params["edge_radius"] = L("edge_radius", allow_zero=True) if "edge_radius" in sph else 0.0
+        if params["inner_diameter"] >= params["outer_diameter"]:
+            raise UserError(f"{source}: [spherometer] inner_diameter must be smaller than outer_diameter")
+        if params["inner_diameter"] / 2 + params["edge_radius"] > params["outer_diameter"] / 2 - params["edge_radius"]:
+            raise UserError(f"{source}: [spherometer] edge_radius is too large for the ring's wall")
+        u.update(inner_diameter=u_of["ring_diameter"], outer_diameter=u_of["ring_diameter"],
+                 edge_radius=u_of["edge_radius"])
+    else:
+        params["ring_radius"] = L("ring_radius")
+        params["ball_diameter"] = L("ball_diameter", allow_zero=True) if "ball_diameter" in sph else 0.0
+        if params["ball_diameter"] / 2 >= params["ring_radius"]:
+            raise UserError(f"{source}: [spherometer] ball_diameter is too large for the ring_radius")
+        u.update(ring_radius=u_of["ring_radius"], ball_diameter=u_of["ball_diameter"])
+    spherometer = Spherometer(kind, params, u)
+    if kind == "three-ball":
+        legs = spherometer.legs_mm()
+        try:
+            r = geometry.circumradius_mm(*legs)
+        except UserError as exc:  # name the file and key, not just the numbers
+            raise UserError(f"{source}: [spherometer] {key}: {exc}") from None
+        if params["ball_diameter"] / 2 >= r or params["ball_diameter"] > min(legs):
+            raise UserError(f"{source}: [spherometer] ball_diameter is too large for the leg spacings (the balls would overlap)")
+
+    ind = data["indicator"]
+    if not isinstance(ind, dict):
+        raise UserError(f"{source}: [indicator] must be a table")
+    _check_keys(ind, *_IND_KEYS, f"{source}: [indicator]")
+    ind_unit = check_unit(ind.get("unit", unit), f"{source}: [indicator] unit")
+    resolution_mm = _length(ind["resolution"], unit, f"{source}: [indicator] resolution")  # file unit, like every length
+    sense = ind.get("sense", "in-positive")
+    if sense not in SENSES:
+        raise UserError(f"{source}: [indicator] sense must be 'in-positive' or 'out-positive', not {sense!r}")
+    name = data.get("name", "")
+    if not isinstance(name, str):
+        raise UserError(f"{source}: name must be a string")
+    return Profile(unit, spherometer, Indicator(resolution_mm, sense, ind_unit), name, source)
+
+
+def shipped_profiles() -> list[str]:
+    """Names of the profiles that ship with the package (logger/config/profiles)."""
+    return sorted(p.stem for p in PROFILE_DIR.glob("*.toml"))
+
+
+def resolve_profile(ref: str | Path) -> Path:
+    """A path to a TOML file, or the name of a shipped profile; a path wins when both exist."""
+    p = Path(ref)
+    if p.exists() or p.suffix == ".toml" or len(p.parts) > 1:
+        return p
+    named = PROFILE_DIR / f"{p.name}.toml"
+    return named if named.is_file() else p
+
+
+def load_profile(path: str | Path) -> Profile:
+    """Read and check a profile (a file, or a shipped profile by name); every problem is a one-line UserError."""
+    p = resolve_profile(path)
+    try:
+        text = p.read_bytes().decode("utf-8")
+    except FileNotFoundError:
+        raise UserError(f"{p}: profile not found (a TOML file, or one of the shipped profiles: "
+                        f"{', '.join(shipped_profiles())})") from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise UserError(f"{p}: cannot read profile ({exc.__class__.__name__}: {exc})") from None
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise UserError(f"{p}: TOML syntax error: {exc}") from None
+    return parse_profile(data, str(p))

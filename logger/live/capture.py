@@ -1,0 +1,182 @@
+"""`saglog capture`: live from the indicator, hands-free, nothing lost.
+
+The loop reads blocks from the source, cuts them into lines, records every
+line in stream.rec and feeds the same (time, line) pairs to the pipeline
+that replay uses.  When the device goes away it shows "waiting for device",
+retries the same path with back-off and carries on in the same run; the gap
+goes into stream.rec and summary.json.  Ctrl-C and SIGTERM end the run
+cleanly; every ending leaves a complete run folder.
+
+Exit status: 0 normal end, 2 a user error, 3 the device never appeared.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import time
+from pathlib import Path
+from typing import Sequence
+
+from logger.analysis.seating import State
+from logger.config.profile import Profile
+from logger.errors import DeviceGone, DeviceNotFound, UserError
+from logger.formats.decode import LineSplitter
+from logger.formats.recording import RecWriter, end_comment, escape, gap_comment
+from logger.live.listener import Listener
+from logger.live.pipeline import Pipeline, RunSettings
+from logger.run.columns import RECORDING_FILE
+from logger.run.writer import RunWriter, prepare_folder
+from logger.transport.serial_source import SerialSource
+
+REC_FLUSH_S = 0.5  # stream.rec to disk at least this often (samples.csv: run.writer.FLUSH_EVERY_S)
+
+
+class NeverAppeared(UserError):
+    """The device was not there at the start and did not come within the wait."""
+
+    exit_status = 3
+
+
+class Stop:
+    """Set by SIGINT/SIGTERM; the loop checks it between blocks."""
+
+    def __init__(self):
+        self.requested = False
+
+    def __call__(self, signum, frame):
+        self.requested = True
+
+
+def _open_with_wait(src: SerialSource, wait_s: float, stop: Stop, on_wait) -> None:
+    deadline = time.monotonic() + wait_s
+    delay = 0.2
+    while True:
+        try:
+            src.open()
+            return
+        except DeviceNotFound as exc:
+            if not exc.absent:
+                raise
+            if time.monotonic() >= deadline or stop.requested:
+                raise NeverAppeared(f"{exc} (waited {wait_s:g} s)") from None
+            on_wait()
+            time.sleep(delay)
+            delay = min(delay * 2, 2.0)
+
+
+def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | Path, *, baudrate=9600,
+            bytesize=8, parity="N", stopbits=1, poll_command: bytes | None = None, poll_interval_s=0.5,
+            duration_s: float | None = None, surface_seatings: int | None = None, wait_s: float = 10.0,
+            listeners: Sequence[Listener] = (), force: bool = False, stop: Stop | None = None) -> dict:
+    """Capture into `out_dir` until the duration, the seating count or a stop signal; return the summary.
+
+    `listeners` (views, bells, the stand page ...) hear the run after the run-folder writer.
+    """
+    stop = stop or Stop()
+    fresh = not Path(out_dir).exists()
+    out = prepare_folder(out_dir, force)
+    src = SerialSource(port, baudrate=baudrate, bytesize=bytesize, parity=parity, stopbits=stopbits,
+                       poll_command=poll_command, poll_interval_s=poll_interval_s)
+
+    def waiting():  # before the run exists, only the watchers hear that the device is not there yet
+        for lst in listeners:
+            lst.state(State.WAITING)
+
+    try:
+        _open_with_wait(src, wait_s, stop, waiting)
+    except UserError:
+        if fresh:
+            with contextlib.suppress(OSError):
+                out.rmdir()  # nothing was received: leave no empty run folder behind
+        raise
+    t0 = time.monotonic()
+    start_wall = round(time.time(), 6)  # as the recording header states it
+
+    def clock() -> float:
+        # to the microsecond, as stream.rec keeps it: the replay then sees exactly what the capture saw
+        return round(time.monotonic() - t0, 6)
+
+    deadline = None if duration_s is None else t0 + duration_s
+    settings.source = src.settings()
+    writer = RunWriter(out, start_wall, settings.as_dict(profile))
+    pipeline = Pipeline(profile, settings, [writer, *listeners], start_wall)
+    # last: once stream.rec exists, the folder is a complete (empty) run
+    rec = RecWriter(out / RECORDING_FILE, start_wall, {**src.settings(), "profile": profile.source})
+    splitter = LineSplitter()
+    last_rec_flush = t0
+    pipeline.device_state(State.LIFTED)
+    try:
+        while not stop.requested:
+            try:
+                chunk = src.read_block()
+            except DeviceGone:
+                gap_start = clock()
+                for raw in splitter.flush():  # a half line before the cut is still a received line
+                    _take(rec, pipeline, gap_start, raw)
+                pipeline.device_state(State.WAITING)
+                _reconnect(src, stop, deadline)
+                gap_end = clock()
+                rec.comment(gap_comment(gap_start, gap_end))
+                pipeline.gap(gap_start, gap_end)
+                if not src.is_open:
+                    break  # stopped or out of time while waiting
+                pipeline.device_state(State.LIFTED)
+                continue
+            now = clock()
+            if chunk:
+                for raw in splitter.feed(chunk):
+                    _take(rec, pipeline, now, raw)
+            pipeline.tick(now)
+            mono = time.monotonic()
+            if mono - last_rec_flush >= REC_FLUSH_S:
+                rec.flush()
+                last_rec_flush = mono
+            if duration_s is not None and now >= duration_s:
+                break
+            if surface_seatings is not None and pipeline.result.summary.get("seatings_surface", 0) >= surface_seatings:
+                break
+    finally:
+        summary = _wind_up(splitter, rec, pipeline, src, clock())
+    return summary
+
+
+def _wind_up(splitter, rec, pipeline, src, end: float) -> dict:
+    """Close everything, even after a write error (disk full, read-only): every step is tried, the first error raised."""
+    first = None
+
+    def attempt(step):
+        nonlocal first
+        try:
+            return step()
+        except UserError as exc:
+            first = first or exc
+
+    attempt(lambda: [_take(rec, pipeline, end, raw) for raw in splitter.flush()])
+    attempt(lambda: rec.comment(end_comment(end)))
+    attempt(rec.close)
+    summary = attempt(lambda: pipeline.finish(end))
+    attempt(pipeline.end)  # every listener ended (files closed) even when the finish failed
+    src.close()
+    if first is not None:
+        raise first
+    return summary
+
+
+def _take(rec: RecWriter, pipeline: Pipeline, t_s: float, raw: bytes) -> None:
+    """One received line: into the recording and the pipeline, escaped once for both."""
+    text = escape(raw)
+    rec.write_text(t_s, text)
+    pipeline.line(t_s, raw, text)
+
+
+def _reconnect(src: SerialSource, stop: Stop, deadline: float | None) -> None:
+    """Retry the same path with back-off until it opens again, a stop is asked for, or the run's time is up."""
+    src.close()
+    delay = 0.1
+    while not stop.requested and (deadline is None or time.monotonic() < deadline):
+        try:
+            src.open()
+            return
+        except DeviceNotFound:
+            time.sleep(delay)
+            delay = min(delay * 1.5, 2.0)

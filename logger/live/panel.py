@@ -1,0 +1,111 @@
+"""The live panel on a terminal: a rich panel redrawn in place about five times a second.
+
+The radius stands in large block digits so it reads from two metres; below
+it the state, the reading, the counts, the last verdict and the result.
+"""
+
+from __future__ import annotations
+
+import time
+
+from rich.console import Console, Group
+from rich.live import Live
+from rich.panel import Panel
+from rich.table import Table
+from rich.text import Text
+
+from logger.live.present import length_text
+from logger.live.status import RunStatus
+from logger.units import from_mm
+
+REDRAW_EVERY_S = 0.2  # about five times a second, apart from the recording's flush
+
+# A 3x5 block font of our own for the big number.
+_GLYPHS = {
+    "0": ["███", "█ █", "█ █", "█ █", "███"], "1": [" █ ", "██ ", " █ ", " █ ", "███"],
+    "2": ["███", "  █", "███", "█  ", "███"], "3": ["███", "  █", "███", "  █", "███"],
+    "4": ["█ █", "█ █", "███", "  █", "  █"], "5": ["███", "█  ", "███", "  █", "███"],
+    "6": ["███", "█  ", "███", "█ █", "███"], "7": ["███", "  █", "  █", "  █", "  █"],
+    "8": ["███", "█ █", "███", "█ █", "███"], "9": ["███", "█ █", "███", "  █", "███"],
+    ".": ["   ", "   ", "   ", "   ", " █ "], "-": ["   ", "   ", "███", "   ", "   "],
+    " ": ["   ", "   ", "   ", "   ", "   "],
+}
+
+
+def big_digits(text: str) -> str:
+    rows = ["", "", "", "", ""]
+    for ch in text:
+        g = _GLYPHS.get(ch, _GLYPHS[" "])
+        for i in range(5):
+            rows[i] += g[i] + " "
+    return "\n".join(rows)
+
+
+def phase_text(summary: dict) -> str:
+    if summary.get("seatings_surface"):
+        return "measuring the surface"
+    if summary.get("seatings_flat"):
+        return "zero set - seat the surface (or the flat again)"
+    return "zeroing on the flat"
+
+
+class LivePanel(RunStatus):
+    """A rich panel, refreshed in place; use it as a context manager around the capture."""
+
+    def __init__(self, unit: str, device: str = "", console: Console | None = None):
+        super().__init__()
+        self.unit = unit
+        self.device = device
+        self.console = console or Console()
+        self._live = Live(self._render(), console=self.console, refresh_per_second=4, transient=False)
+        self._last_draw = 0.0
+
+    def __enter__(self):
+        self._live.__enter__()
+        return self
+
+    def __exit__(self, *exc):
+        self._live.update(self._render())
+        return self._live.__exit__(*exc)
+
+    def state(self, state) -> None:
+        super().state(state)
+        self._draw()
+
+    def tick(self, t_s: float) -> None:
+        if time.monotonic() - self._last_draw >= REDRAW_EVERY_S:
+            self._draw()
+
+    def end(self, summary: dict) -> None:
+        self.summary = summary
+        self._draw()
+
+    def _draw(self) -> None:
+        self._last_draw = time.monotonic()
+        self._live.update(self._render())
+
+    def _render(self):
+        s, u = self.summary, self.unit
+        radius = s.get("radius_mm")
+        big = big_digits(f"{from_mm(radius, u):.1f}" if radius is not None else "-")
+        t = Table.grid(padding=(0, 2))
+        t.add_column(style="bold")
+        t.add_column()
+        t.add_row("state", Text(str(self.current).upper(), style="reverse bold" if self.current == "seated" else "bold"))
+        t.add_row("reading", length_text(self.value_mm, u, 4) if self.value_mm is not None else "-")
+        t.add_row("phase", phase_text(s))
+        t.add_row("seatings", f"{s.get('seatings_flat', 0)} flat, {s.get('seatings_surface', 0)} surface, "
+                              f"{s.get('seatings_rejected', 0)} rejected")
+        t.add_row("last", self.last_event or "-")
+        t.add_row("zero", length_text(s.get("zero_mm"), u, 4))
+        sag_u = s.get("sagitta_u_mm")
+        t.add_row("sagitta", length_text(s.get("sagitta_mm"), u, 5) + (f" +- {length_text(sag_u, u, 5)}" if sag_u else ""))
+        U = s.get("radius_U_mm")
+        t.add_row("radius", length_text(radius, u, 1) + (f" +- {length_text(U, u, 1)} (~95 %)" if U else ""))
+        fr = s.get("focal_ratio")
+        t.add_row("focal length", length_text(s.get("focal_length_mm"), u, 1) + (f"   f/{fr:.2f}" if fr else ""))
+        if s.get("target_radius_mm") is not None:
+            t.add_row("to go", f"radius {length_text(s.get('radius_to_go_mm'), u, 1)}, "
+                               f"sagitta at the ring {length_text(s.get('sagitta_to_go_mm'), u, 5)}")
+        return Panel(Group(Text(big, style="bold"), Text(f"radius of curvature [{u}]"), t),
+                     title=f"saglog  {self.device}", border_style="bold")

@@ -1,0 +1,43 @@
+"""Human-readable text of a run's result, in the profile's unit (files stay in mm)."""
+
+from __future__ import annotations
+
+from logger.units import from_mm
+
+
+def length_text(x_mm, unit: str, digits: int = 4) -> str:
+    if x_mm is None:
+        return "not estimable"
+    d = digits + 1 if unit == "in" else digits
+    return f"{from_mm(x_mm, unit):.{d}f} {unit}"
+
+
+def result_lines(summary: dict) -> list[str]:
+    """The few lines a person wants at the end of a run."""
+    unit = summary.get("unit") or "mm"
+    out = [f"status: {summary.get('status')} - {summary.get('message')}"]
+    out.append(
+        f"seatings: {summary.get('seatings_flat', 0)} flat, {summary.get('seatings_surface', 0)} surface accepted, "
+        f"{summary.get('seatings_rejected', 0)} rejected; lines {summary.get('lines', 0)}, "
+        f"unreadable {summary.get('bad_lines', 0)}"
+    )
+    if summary.get("zero_mm") is not None:
+        drift = summary.get("drift_mm_per_min") or 0.0
+        out.append(f"zero: {length_text(summary['zero_mm'], unit)}  drift {from_mm(drift, unit) * 1000:.2f} "
+                   f"{'thou' if unit == 'in' else 'um'}/min ({summary.get('drift_model')})")
+    if summary.get("sagitta_mm") is not None:
+        u = summary.get("sagitta_u_mm")
+        u_txt = f" +- {length_text(u, unit, 5)} (standard)" if u is not None else " (uncertainty not estimable)"
+        out.append(f"surface: {summary.get('surface')}  sagitta {length_text(summary['sagitta_mm'], unit, 5)}{u_txt}")
+    if summary.get("radius_mm") is not None:
+        U = summary.get("radius_U_mm")
+        U_txt = (f" +- {length_text(U, unit, 1)} (expanded, k = {summary.get('coverage_factor'):.2f}, ~95 %)"
+                 if U is not None else " (uncertainty not estimable)")
+        out.append(f"radius of curvature: {length_text(summary['radius_mm'], unit, 1)}{U_txt}")
+        out.append(f"focal length: {length_text(summary['focal_length_mm'], unit, 1)}"
+                   + (f"  focal ratio f/{summary['focal_ratio']:.2f}" if summary.get("focal_ratio") else ""))
+    if summary.get("target_radius_mm") is not None and summary.get("radius_to_go_mm") is not None:
+        out.append(f"target radius {length_text(summary['target_radius_mm'], unit, 1)}: "
+                   f"radius to go {length_text(summary['radius_to_go_mm'], unit, 1)}, "
+                   f"sagitta to go at the ring {length_text(summary['sagitta_to_go_mm'], unit, 5)}")
+    return out

@@ -1,0 +1,57 @@
+"""`saglog replay`: the whole pipeline on a recording, into a run folder."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Sequence
+
+from logger.config.profile import Profile
+from logger.errors import UserError
+from logger.live.listener import Listener
+from logger.live.pipeline import Pipeline, RunSettings
+from logger.formats.recording import is_recording, parse_event, read_plain, read_recording
+from logger.run.writer import RunWriter, prepare_folder
+
+
+def replay_file(path: str | Path, profile: Profile, settings: RunSettings, out_dir: str | Path,
+                rate_hz: float | None = None, force: bool = False, listeners: Sequence[Listener] = ()) -> dict:
+    """Replay a .rec recording (or a plain capture at `rate_hz`) into `out_dir`; returns the summary.
+
+    A malformed record stops the replay with a UserError, after everything
+    before it has been analysed and written.
+    """
+    path = Path(path)
+    if not path.is_file():
+        raise UserError(f"{path}: recording not found")
+    end_s = None
+
+    def on_comment(text: str) -> None:
+        # capture events kept in the recording, so the replay sees the run as the capture did
+        nonlocal end_s
+        event = parse_event(text)
+        if event is not None and event[0] == "gap":
+            pipeline.gap(*event[1])
+        elif event is not None:
+            end_s = event[1][0]
+
+    if is_recording(path):
+        header, records = read_recording(path, on_comment)
+        start_wall = header.get("start_wall", 0.0)
+        source = {"recording": str(path), **{k: v for k, v in header.items() if k != "start_wall"}}
+    elif rate_hz is None:
+        raise UserError(f"{path}: not a saglog recording; for a plain capture give --rate HZ")
+    else:
+        if rate_hz <= 0:
+            raise UserError(f"--rate: must be positive, got {rate_hz:g}")
+        records, start_wall = read_plain(path, rate_hz), 0.0
+        source = {"plain_capture": str(path), "rate_hz": rate_hz}
+    settings.source = source
+    out = prepare_folder(out_dir, force)
+    writer = RunWriter(out, start_wall, settings.as_dict(profile))
+    pipeline = Pipeline(profile, settings, [writer, *listeners], start_wall, live=False)
+    try:
+        for t_s, raw, text in records:
+            pipeline.line(t_s, raw, text)
+    finally:
+        pipeline.finish(end_s)
+    return pipeline.summary

@@ -1,0 +1,1 @@
+"""The run folder: its file names and columns, the writer, and the reader (`load_run`)."""

@@ -1,0 +1,43 @@
+"""ISO 8601 UTC text for epoch seconds: the one formatter every file and view uses."""
+
+from __future__ import annotations
+
+import math
+import time
+from datetime import datetime, timezone
+
+
+class IsoClock:
+    """`YYYY-MM-DDTHH:MM:SS.ffffffZ` for epoch seconds, fast: the date and time of day are cached per second.
+
+    Samples arrive many times a second, so formatting the date again for
+    every row (strftime, datetime) would be the costliest part of a row.
+    """
+
+    def __init__(self):
+        self._sec = None
+        self._prefix = ""
+
+    def __call__(self, epoch_s: float) -> str:
+        sec = int(epoch_s) if epoch_s >= 0 else math.floor(epoch_s)
+        if sec != self._sec:
+            self._sec = sec
+            self._prefix = time.strftime("%Y-%m-%dT%H:%M:%S", time.gmtime(sec))
+        micros = int((epoch_s - sec) * 1e6 + 0.5)
+        if micros > 999999:
+            micros = 999999
+        return f"{self._prefix}.{micros:06d}Z"
+
+
+iso_utc = IsoClock()
+
+
+def parse_iso_utc(text: str) -> float | None:
+    """Epoch seconds from ISO 8601 text (a time without a zone is UTC); None when it is not a time."""
+    try:
+        dt = datetime.fromisoformat(text.strip().replace("Z", "+00:00"))
+    except ValueError:
+        return None
+    if dt.tzinfo is None:
+        dt = dt.replace(tzinfo=timezone.utc)
+    return dt.timestamp()

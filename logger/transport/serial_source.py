@@ -1,0 +1,172 @@
+"""Where the bytes come from: a serial port or any pyserial URL.
+
+pyserial's `serial_for_url` picks the transport from the URL (a device path
+or COM name, socket://host:port for a network bridge, rfc2217://, loop://),
+so nothing above this module knows or cares which one it is.  Reads are
+block reads with a short timeout, never byte-by-byte.  Failing to open is a
+`DeviceNotFound` (a UserError with one clear line); a link that dies while
+open is `DeviceGone`, which the capture layer catches to reconnect.
+"""
+
+from __future__ import annotations
+
+import errno
+import time
+
+import serial
+import serial.tools.list_ports
+
+from logger.errors import DeviceGone, DeviceNotFound, UserError
+
+PARITIES = {"N": serial.PARITY_NONE, "E": serial.PARITY_EVEN, "O": serial.PARITY_ODD,
+            "M": serial.PARITY_MARK, "S": serial.PARITY_SPACE}
+BYTESIZES = (5, 6, 7, 8)
+STOPBITS = (1, 1.5, 2)
+
+
+class SerialSource:
+    """One open port; `read_block()` returns whatever bytes arrived (b"" on timeout)."""
+
+    def __init__(self, url: str, baudrate=9600, bytesize=8, parity="N", stopbits=1,
+                 poll_command: bytes | None = None, poll_interval_s: float = 0.5,
+                 read_timeout_s: float = 0.05):
+        self.url = str(url)
+        self.baudrate = _check_int(baudrate, "baud rate", 1)
+        self.bytesize = _check_choice(_as_number(bytesize, "byte size"), BYTESIZES, "byte size")
+        self.parity = _check_choice(str(parity).upper()[:1], tuple(PARITIES), "parity")
+        self.stopbits = _check_choice(_as_number(stopbits, "stop bits"), STOPBITS, "stop bits")
+        self.poll_command = bytes(poll_command) if poll_command else None
+        if not poll_interval_s > 0:
+            raise UserError(f"poll interval must be positive, got {poll_interval_s!r}")
+        self.poll_interval_s = float(poll_interval_s)
+        self.read_timeout_s = float(read_timeout_s)
+        self._ser = None
+        self._next_poll = 0.0
+
+    def open(self) -> None:
+        if self._ser is not None:
+            return
+        # pyserial's rfc2217 handler refuses a write timeout (it raises at open); the others take one
+        extra = {} if self.url.lower().startswith("rfc2217://") else {"write_timeout": 1.0}
+        try:
+            self._ser = serial.serial_for_url(
+                self.url, baudrate=self.baudrate, bytesize=self.bytesize, parity=PARITIES[self.parity],
+                stopbits=self.stopbits, timeout=self.read_timeout_s, exclusive=True, **extra,
+            )
+        except (serial.SerialException, OSError, ValueError) as exc:
+            err = DeviceNotFound(open_error_message(self.url, exc))
+            err.absent = _absent(exc)
+            raise err from None
+        self._next_poll = time.monotonic()
+
+    def read_block(self) -> bytes:
+        ser = self._ser
+        if ser is None:
+            raise DeviceGone(f"{self.url}: not open")
+        try:
+            if self.poll_command is not None:
+                now = time.monotonic()
+                if now >= self._next_poll:
+                    ser.write(self.poll_command)
+                    self._next_poll = max(self._next_poll + self.poll_interval_s, now)
+            data = ser.read(ser.in_waiting or 1)
+            if len(data) == 1:  # woke on the first byte: take the rest of the burst too
+                more = ser.in_waiting
+                if more:
+                    data += ser.read(more)
+            return data
+        except (serial.SerialException, OSError) as exc:
+            raise DeviceGone(f"{self.url}: device or link gone ({exc})") from None
+
+    def close(self) -> None:
+        ser, self._ser = self._ser, None
+        if ser is not None:
+            try:
+                ser.close()
+            except (serial.SerialException, OSError):
+                pass  # already gone; nothing left to release
+
+    @property
+    def is_open(self) -> bool:
+        return self._ser is not None
+
+    def settings(self) -> dict:
+        """The port settings, for a recording's header."""
+        poll = "none"
+        if self.poll_command is not None:
+            poll = f"{self.poll_command!r} every {self.poll_interval_s:g} s"
+        return {"url": self.url, "baudrate": self.baudrate, "bytesize": self.bytesize,
+                "parity": self.parity, "stopbits": self.stopbits, "poll": poll}
+
+    def __enter__(self):
+        self.open()
+        return self
+
+    def __exit__(self, *exc):
+        self.close()
+
+
+def open_error_message(url: str, exc: BaseException) -> str:
+    """One line a user can act on, for a port that will not open."""
+    code = getattr(exc, "errno", None)
+    text = str(exc)
+    low = text.lower()
+    if isinstance(exc, ValueError) or "invalid url" in low or "unknown url" in low or "expected" in low:
+        return f"{url}: not a valid port or URL ({text}); use a device path, a COM name or socket://host:port"
+    if url.lower().startswith(("socket://", "rfc2217://")) and not _has_port(url):
+        return f"{url}: a network URL needs a host and a port, e.g. socket://bridge.local:23"
+    if code == errno.ENOTTY or "inappropriate ioctl" in low:
+        return f"{url}: not a serial port"
+    if code == errno.ENOENT or "no such file" in low or "filenotfounderror" in low or "cannot find" in low:
+        return f"{url}: no such port (is the adapter plugged in? 'saglog ports' lists the ports)"
+    if code == errno.EACCES or "permission denied" in low:
+        return (f"{url}: permission denied (on Linux add yourself to the 'dialout' group: "
+                "sudo usermod -aG dialout $USER, then log out and in)")
+    if code in (errno.EBUSY, errno.EAGAIN) or "busy" in low or "exclusively lock" in low or "access is denied" in low:
+        return f"{url}: port is busy (another program has it open)"
+    if code == errno.ECONNREFUSED or "refused" in low:
+        return f"{url}: connection refused (nothing is listening there)"
+    if "timed out" in low or code in (errno.EHOSTUNREACH, errno.ENETUNREACH):
+        return f"{url}: network bridge not reachable ({text})"
+    return f"{url}: cannot open port ({text})"
+
+
+def _absent(exc: BaseException) -> bool:
+    """Not there (yet): worth waiting for, unlike a bad URL, a busy port or a permission problem."""
+    code = getattr(exc, "errno", None)
+    low = str(exc).lower()
+    return (code in (errno.ENOENT, errno.ECONNREFUSED, errno.EHOSTUNREACH, errno.ENETUNREACH)
+            or "no such file" in low or "refused" in low)
+
+
+def _has_port(url: str) -> bool:
+    rest = url.split("://", 1)[1].split("?", 1)[0]
+    host, sep, port = rest.rpartition(":")
+    return bool(sep and host and port.isdigit())
+
+
+def list_ports() -> list[dict]:
+    """The serial ports this machine has, with what the system says about each."""
+    return [{"device": p.device, "description": p.description or "", "hwid": p.hwid or ""}
+            for p in sorted(serial.tools.list_ports.comports(), key=lambda p: p.device)]
+
+
+def _as_number(value, what):
+    try:
+        f = float(value)
+    except (TypeError, ValueError):
+        raise UserError(f"{what} must be a number, got {value!r}") from None
+    return int(f) if f.is_integer() else f
+
+
+def _check_int(value, what, minimum):
+    v = _as_number(value, what)
+    if not isinstance(v, int) or v < minimum:
+        raise UserError(f"{what} must be a whole number of at least {minimum}, got {value!r}")
+    return v
+
+
+def _check_choice(value, choices, what):
+    if value not in choices:
+        raise UserError(f"{what} must be one of {', '.join(map(str, choices))}, got {value!r}")
+    return value

@@ -1,0 +1,68 @@
+"""Outlier tests against their published definitions and reference libraries."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from hypothesis import given, settings, strategies as st
+from scipy import stats
+
+from logger.analysis import outliers
+
+
+def test_modified_z_constant_is_the_normal_quartile():
+    # Iglewicz & Hoaglin (1993): M = 0.6745 (x - median) / MAD, 0.6745 = Phi^-1(0.75) (scipy.stats.norm)
+    assert math.isclose(outliers.MAD_TO_Z, stats.norm.ppf(0.75), abs_tol=5e-5)
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.lists(st.floats(-1, 1, allow_nan=False), min_size=3, max_size=40), st.floats(1e-6, 1e-2))
+def test_modified_z_against_scipy_mad(values, floor):
+    # MAD from scipy.stats.median_abs_deviation (scale=1), floored at the step as DESIGN.md asks
+    x = np.asarray(values)
+    mad = max(stats.median_abs_deviation(x, scale=1.0), floor)
+    expected = 0.6745 * (x - np.median(x)) / mad
+    got = outliers.modified_z(values, floor)
+    for (rej, score, reason), e in zip(got, expected):
+        assert math.isclose(score, e, rel_tol=1e-9, abs_tol=1e-12)
+        assert rej == (abs(e) > 3.5) and bool(reason) == rej
+
+
+def test_identical_quantised_seatings_are_not_outliers():
+    # every seating on the same count, one a count off: the MAD floor keeps it (common practice trap)
+    values = [0.340] * 9 + [0.341]
+    assert not any(r for r, _, _ in outliers.modified_z(values, floor=0.001))
+
+
+def test_grubbs_critical_values_against_table():
+    # Two-sided Grubbs critical values at alpha = 0.05 (tables in the NIST/SEMATECH e-Handbook
+    # section 1.3.5.17 and Grubbs 1969; from memory): n=3 1.155, n=10 2.290, n=20 2.709, n=30 2.908
+    for n, g in [(3, 1.155), (10, 2.290), (20, 2.709), (30, 2.908)]:
+        assert abs(outliers._grubbs_critical(n, 0.05) - g) < 0.002
+
+
+def test_grubbs_finds_a_planted_outlier_and_only_it():
+    rng = np.random.default_rng(7)
+    x = list(rng.normal(0, 1, 20))
+    x[5] = 8.0
+    verdicts = outliers.grubbs(x, floor=1e-9)
+    assert [i for i, (r, _, _) in enumerate(verdicts) if r] == [5]
+
+
+def test_chauvenet_threshold():
+    # Chauvenet: reject when n * P(|Z| >= z) < 1/2; for n = 10 the cut is z = 1.96 (Taylor,
+    # "An Introduction to Error Analysis", ch. 6; the value follows from scipy.stats.norm)
+    z_cut = stats.norm.isf(0.5 / 10 / 2)
+    assert math.isclose(z_cut, 1.96, abs_tol=0.001)
+    x = np.array([0.0] * 5 + [1.0] * 4 + [0.5])
+    m, sd = x.mean(), x.std(ddof=1)
+    verdicts = outliers.chauvenet(list(x), floor=1e-9)
+    for xi, (r, z, _) in zip(x, verdicts):
+        assert math.isclose(z, abs(xi - m) / sd)
+        assert r == (abs(xi - m) / sd > z_cut)
+
+
+def test_fewer_than_three_are_never_judged():
+    for method in outliers.METHODS:
+        assert outliers.judge([0.0, 10.0], method, 0.001) == [(False, 0.0, "")] * 2

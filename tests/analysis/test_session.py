@@ -1,0 +1,211 @@
+"""The session: phases, zero, drift, rejection and the radius, against exact constructions.
+
+Seatings here are made from the exact construction in tests/exact_construction.py
+(balls placed on a sphere in space), not from logger's formulas.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+
+import numpy as np
+import pytest
+from hypothesis import given, settings, strategies as st
+
+from tests.helpers.exact_construction import three_ball_reading
+from logger.config.profile import parse_profile
+from logger.run.writer import json_text
+from logger.analysis.seating import Seating
+from logger.analysis.session import AnalysisSettings, analyse, fit_zero
+
+LEGS = (70.02, 69.98, 70.01)
+BALL = 6.35
+
+
+def make_profile(sense="in-positive", resolution=0.001):
+    return parse_profile({"unit": "mm", "spherometer": {"kind": "three-ball", "leg_spacings": list(LEGS),
+                                                        "ball_diameter": BALL},
+                          "indicator": {"resolution": resolution, "sense": sense}}, "test profile")
+
+
+def session(R, surface, sense="in-positive", flats_before=4, surface_n=8, flats_after=3, drift_mm_per_s=0.0,
+            scatter=0.0, rng=None, zero=0.0123):
+    """Seatings (t every 5 s) as the instrument would give them on a sphere of radius R."""
+    s_true = three_ball_reading(*LEGS, BALL / 2, R, surface)
+    sign = 1 if sense == "in-positive" else -1
+    travel = -s_true if surface == "concave" else s_true  # reading grows as the spindle goes in
+    out, t = [], 0.0
+    kinds = ["flat"] * flats_before + ["surface"] * surface_n + ["flat"] * flats_after
+    for i, kind in enumerate(kinds):
+        v = zero + drift_mm_per_s * (t + 1.0) + (sign * travel if kind == "surface" else 0.0)
+        if rng is not None:
+            v += rng.normal(0, scatter)
+        out.append(Seating(i, t, t + 2.0, v, 0.0005, 200))
+        t += 5.0
+    return out, s_true
+
+
+@settings(max_examples=40, deadline=None)
+@given(R=st.floats(300, 20000), surface=st.sampled_from(["concave", "convex"]),
+       sense=st.sampled_from(["in-positive", "out-positive"]), drift=st.floats(-2e-4, 2e-4))
+def test_noise_free_session_recovers_the_true_radius(R, surface, sense, drift):
+    seatings, s_true = session(R, surface, sense, drift_mm_per_s=drift)
+    res = analyse(seatings, make_profile(sense), AnalysisSettings())
+    s = res.summary
+    assert s["surface"] == surface
+    assert s["seatings_flat"] == 7 and s["seatings_surface"] == 8 and s["seatings_rejected"] == 0
+    assert math.isclose(s["sagitta_mm"], s_true, rel_tol=1e-9, abs_tol=1e-12)
+    assert math.isclose(s["radius_mm"], R, rel_tol=1e-7)
+    assert math.isclose(s["drift_mm_per_min"], drift * 60, rel_tol=1e-6, abs_tol=1e-12)
+    assert s["focal_length_mm"] == pytest.approx(R / 2, rel=1e-7)  # R = 2f (textbook mirror relation)
+
+
+def test_drift_is_linear_only_when_flats_bracket_the_surface():
+    seatings, _ = session(2400, "concave", flats_after=0, drift_mm_per_s=1e-4)
+    s = analyse(seatings, make_profile(), AnalysisSettings()).summary
+    assert s["drift_model"] == "constant" and s["drift_mm_per_min"] == 0.0
+    seatings, _ = session(2400, "concave", flats_after=2, drift_mm_per_s=1e-4)
+    s = analyse(seatings, make_profile(), AnalysisSettings()).summary
+    assert s["drift_model"] == "linear"
+
+
+def test_zero_fit_against_scipy_linregress():
+    # the zero line and its slope against scipy.stats.linregress (reference library)
+    from scipy import stats
+
+    rng = np.random.default_rng(2)
+    t = np.array([1.0, 6.0, 11.0, 80.0, 85.0])
+    x = 0.01 + 2e-5 * t + rng.normal(0, 3e-4, len(t))
+    z = fit_zero(t, x, True, None)
+    ref = stats.linregress(t, x)
+    assert math.isclose(z.slope_mm_per_s, ref.slope, rel_tol=1e-9)
+    assert math.isclose(z.at(0.0), ref.intercept, rel_tol=1e-9, abs_tol=1e-12)
+    # standard error of the line at the mean time = residual sd / sqrt(n) (textbook regression)
+    resid_sd = math.sqrt(np.sum((x - (ref.intercept + ref.slope * t)) ** 2) / (len(t) - 2))
+    assert math.isclose(z.u_mm, resid_sd / math.sqrt(len(t)), rel_tol=1e-9)
+
+
+def test_grit_on_the_flat_is_rejected_with_a_reason_and_kept():
+    seatings, _ = session(2400, "concave")
+    v = seatings[1]
+    seatings[1] = Seating(v.index, v.t_start_s, v.t_end_s, v.value_mm + 0.04, v.spread_mm, v.n)  # 40 um grain
+    res = analyse(seatings, make_profile(), AnalysisSettings())
+    d = res.decisions[1]
+    assert d.phase == "flat" and not d.accepted and d.reason.startswith("outlier")
+    assert res.summary["seatings_rejected"] == 1 and len(res.decisions) == len(seatings)
+    assert math.isclose(res.summary["radius_mm"], 2400, rel_tol=1e-7)
+
+
+def test_grit_on_the_surface_is_rejected():
+    rng = np.random.default_rng(5)
+    seatings, _ = session(2400, "concave", scatter=0.0008, rng=rng)
+    v = seatings[7]
+    seatings[7] = Seating(v.index, v.t_start_s, v.t_end_s, v.value_mm + 0.03, v.spread_mm, v.n)
+    res = analyse(seatings, make_profile(), AnalysisSettings())
+    assert not res.decisions[7].accepted and res.decisions[7].phase == "surface"
+    assert res.summary["seatings_surface"] == 7
+
+
+def test_unsteady_seating_is_rejected():
+    seatings, _ = session(2400, "concave")
+    v = seatings[6]
+    seatings[6] = Seating(v.index, v.t_start_s, v.t_end_s, v.value_mm, 0.02, v.n)
+    res = analyse(seatings, make_profile(), AnalysisSettings())
+    assert not res.decisions[6].accepted and res.decisions[6].reason.startswith("unsteady")
+
+
+def test_one_surface_seating_is_not_estimable_and_never_nan():
+    seatings, _ = session(2400, "concave", surface_n=1, flats_after=0)
+    s = analyse(seatings, make_profile(), AnalysisSettings()).summary
+    assert s["status"] == "not estimable"
+    assert s["radius_mm"] is not None and s["radius_U_mm"] is None
+    json.loads(json_text(s))  # strict JSON: no NaN or Infinity anywhere
+    assert "NaN" not in json_text(s) and "Infinity" not in json_text(s)
+
+
+def test_no_seatings_and_flat_only():
+    p = make_profile()
+    assert analyse([], p, AnalysisSettings()).summary["status"] == "no flat seatings"
+    seatings, _ = session(2400, "concave", surface_n=0, flats_after=0)
+    s = analyse(seatings, p, AnalysisSettings()).summary
+    assert s["status"] == "no surface seatings" and math.isclose(s["zero_mm"], 0.0123)
+
+
+def test_flat_first_for_a_very_shallow_curve():
+    # R = 200 m gives a 4 um sagitta: closer to the zero than the default phase gap
+    seatings, s_true = session(200000, "concave")
+    assert analyse(seatings, make_profile(), AnalysisSettings()).summary["seatings_surface"] == 0
+    s = analyse(seatings, make_profile(), AnalysisSettings(flat_first=4)).summary
+    assert s["seatings_surface"] == 8 and math.isclose(s["sagitta_mm"], s_true, rel_tol=1e-6)
+
+
+def test_budget_combines_as_gum_equation_10():
+    # u_c^2 = sum (c_i u_i)^2 for uncorrelated inputs (JCGM 100:2008, eq. 10), computed here by hand
+    rng = np.random.default_rng(11)
+    seatings, _ = session(2400, "concave", scatter=0.0015, rng=rng)
+    res = analyse(seatings, make_profile(), AnalysisSettings())
+    sag = np.array([d.sagitta_mm for d in res.decisions if d.phase == "surface" and d.accepted])
+    u_a = sag.std(ddof=1) / math.sqrt(len(sag))
+    # scatter above one count: the step is dithered away, no resolution term (DESIGN.md, common practice)
+    assert not any("resolution" in c.name for c in res.budget.components)
+    u_zero = res.summary["zero_u_mm"]
+    u_s = math.sqrt(u_a**2 + u_zero**2)
+    assert math.isclose(res.summary["sagitta_u_mm"], u_s, rel_tol=1e-9)
+    contributions = [c.contribution for c in res.budget.components]
+    assert math.isclose(res.budget.u_c, math.sqrt(sum(c * c for c in contributions)), rel_tol=1e-12)
+
+
+def test_same_count_is_said_and_resolution_kept():
+    seatings, _ = session(2400, "concave")
+    q = 0.001
+    seatings = [Seating(s.index, s.t_start_s, s.t_end_s, round(s.value_mm / q) * q, 0.0, 100) for s in seatings]
+    s = analyse(seatings, make_profile(), AnalysisSettings()).summary
+    assert s["same_count"] is True and s["radius_U_mm"] > 0
+    assert "same count" in s["message"]
+    # the resolution stays in the budget: q / sqrt(12) per reading, rectangular (GUM F.2.2.1)
+    res_terms = [b for b in s["budget"] if "resolution" in b["name"]]
+    assert len(res_terms) == 2 and all(math.isclose(b["u_mm"], q / math.sqrt(12)) for b in res_terms)
+
+
+def _seatings(values, spread=0.0005):
+    return [Seating(i, 5.0 * i, 5.0 * i + 2.0, v, spread, 200) for i, v in enumerate(values)]
+
+
+def test_grit_on_the_very_first_seating_does_not_become_the_zero():
+    # the exact construction's sagitta on the example legs; the first flat has a 0.5 mm grain under a foot
+    s_true = three_ball_reading(*LEGS, BALL / 2, 2400.0, "concave")
+    values = [0.5, 0.0, 0.0, 0.0] + [-s_true] * 5 + [0.0]
+    res = analyse(_seatings(values), make_profile(), AnalysisSettings())
+    assert not res.decisions[0].accepted and res.decisions[0].phase == "flat"
+    assert res.summary["seatings_flat"] == 4 and res.summary["seatings_surface"] == 5
+    assert math.isclose(res.summary["radius_mm"], 2400.0, rel_tol=1e-7)
+
+
+def test_a_rocked_first_seating_does_not_become_the_zero():
+    s_true = three_ball_reading(*LEGS, BALL / 2, 2400.0, "concave")
+    seatings = _seatings([0.004, 0.0, 0.0, 0.0] + [-s_true] * 5 + [0.0])
+    seatings[0] = Seating(0, 0.0, 2.0, 0.004, 0.02, 200)  # wandered by 20 um while "seated"
+    res = analyse(seatings, make_profile(), AnalysisSettings())
+    assert res.decisions[0].reason.startswith("unsteady")
+    assert math.isclose(res.summary["zero_mm"], 0.0, abs_tol=1e-12)
+    assert math.isclose(res.summary["radius_mm"], 2400.0, rel_tol=1e-7)
+
+
+def test_stray_far_seatings_on_both_sides_are_not_a_surface():
+    # a flat-only session with two grains of grit, one on each side: no surface phase at all
+    res = analyse(_seatings([0, .001, 0, .03, .001, -.029, 0, .001, 0]), make_profile(), AnalysisSettings())
+    assert res.summary["seatings_surface"] == 0 and res.summary["status"] == "no surface seatings"
+    assert res.summary["seatings_rejected"] == 2
+
+
+def test_flats_on_one_count_keep_the_zero_resolution_term():
+    # surface seatings scatter by more than a count (dithered), the flats all show one count:
+    # the zero reading's quantisation q / sqrt(12) (GUM F.2.2.1) must stay in the budget
+    rng = np.random.default_rng(4)
+    s_true = three_ball_reading(*LEGS, BALL / 2, 2400.0, "concave")
+    values = [0.0] * 4 + list(-s_true + rng.normal(0, 0.0015, 8)) + [0.0] * 3
+    res = analyse(_seatings(values), make_profile(), AnalysisSettings())
+    names = [c.name for c in res.budget.components]
+    assert "resolution, zero reading" in names and "resolution, surface reading" not in names
+    assert res.summary["zero_u_mm"] == 0.0 and res.summary["sagitta_u_mm"] > 0.001 / math.sqrt(12)

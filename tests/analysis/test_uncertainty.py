@@ -1,0 +1,246 @@
+"""The GUM budget against scipy, the GUM's own tables, hand-worked sums, sympy and Monte Carlo."""
+
+import json
+import math
+from fractions import Fraction
+
+import numpy as np
+import pytest
+import sympy
+from hypothesis import given, settings
+from hypothesis import strategies as st
+from scipy import stats
+
+from logger.errors import UserError
+from logger.config.profile import parse_profile
+from logger.analysis.uncertainty import (
+    Budget,
+    Component,
+    coverage_factor,
+    monte_carlo_radius,
+    radius_budget,
+    reading_components,
+    resolution_component,
+    scatter_component,
+    seatings_needed,
+)
+from logger.analysis import geometry
+
+
+def _three_ball(u_leg=0.012, u_ball=0.002):
+    return parse_profile({"unit": "mm", "spherometer": {"kind": "three-ball", "leg_spacings": [70.02, 69.98, 70.01],
+                                                        "ball_diameter": 6.35},
+                          "indicator": {"resolution": 0.001},
+                          "uncertainty": {"leg_spacing": u_leg, "ball_diameter": u_ball}}, "test").spherometer
+
+
+def _ring(u_edge=0.02, u_diam=0.0):
+    return parse_profile({"unit": "mm", "spherometer": {"kind": "ring", "inner_diameter": 70.0,
+                                                        "outer_diameter": 76.0, "edge_radius": 0.5},
+                          "indicator": {"resolution": 0.001},
+                          "uncertainty": {"edge_radius": u_edge, "ring_diameter": u_diam}}, "test").spherometer
+
+
+@settings(max_examples=100, deadline=None)
+@given(dof=st.floats(1.0, 1e4), p=st.sampled_from([0.6827, 0.90, 0.95, 0.9545, 0.99, 0.9973]))
+def test_coverage_factor_vs_scipy(dof, p):
+    # Source: reference library scipy.stats.t.ppf, two-sided interval (GUM G.3.4).
+    assert coverage_factor(p, dof) == pytest.approx(stats.t.ppf((1 + p) / 2, dof), rel=1e-12)
+
+
+# GUM (JCGM 100:2008) Table G.2, t_p(nu), recalled from memory, two decimals as printed.
+GUM_TABLE_G2 = [
+    (0.9545, 1, 13.97), (0.9545, 2, 4.53), (0.9545, 3, 3.31), (0.9545, 4, 2.87), (0.9545, 5, 2.65),
+    (0.9545, 10, 2.28), (0.9545, 20, 2.13), (0.9545, 50, 2.05), (0.9545, math.inf, 2.00),
+    (0.95, 1, 12.71), (0.95, 2, 4.30), (0.95, 10, 2.23), (0.95, 20, 2.09), (0.95, math.inf, 1.960),
+    (0.99, 1, 63.66), (0.99, 10, 3.17), (0.99, math.inf, 2.576),
+]
+
+
+@pytest.mark.parametrize("p,dof,t_table", GUM_TABLE_G2)
+def test_coverage_factor_vs_gum_table_g2(p, dof, t_table):
+    # Source: JCGM 100:2008 Table G.2 (from memory), printed to two or three decimals.
+    assert coverage_factor(p, dof) == pytest.approx(t_table, abs=0.006)
+
+
+def test_welch_satterthwaite_hand_worked():
+    # Source: hand-worked example of GUM eq. (G.2b).  Contributions |c_i| u_i = 3, 4, 12 (the
+    # sensitivities are not 1, to check they are applied), dof 4, 9, inf:
+    #   u_c = sqrt(9 + 16 + 144) = 13
+    #   nu_eff = 13^4 / (3^4/4 + 4^4/9) = 28561 / (1753/36) = 1028196/1753 = 586.535...
+    comps = (
+        Component("x1", 1.5, sensitivity=2.0, dof=4, kind="A", distribution="t"),
+        Component("x2", 8.0, sensitivity=-0.5, dof=9, kind="A", distribution="t"),
+        Component("x3", 12.0),
+        Component("zero term, ignored", 0.0, dof=1, kind="A", distribution="t"),
+    )
+    b = Budget("y", 100.0, comps)
+    assert b.u_c == pytest.approx(13.0, rel=1e-15)
+    assert b.nu_eff == pytest.approx(float(Fraction(1028196, 1753)), rel=1e-12)
+    assert b.k == pytest.approx(stats.t.ppf(0.5 + 0.9545 / 2, b.nu_eff), rel=1e-12)
+    assert b.U == pytest.approx(b.k * 13.0, rel=1e-15)
+
+
+def test_all_infinite_dof_gives_normal_k():
+    # Source: GUM G.3.4 / G.6.6: with nu_eff infinite, k is the normal quantile (2 for 95.45 %).
+    b = Budget("y", 1.0, (Component("a", 0.3), Component("b", 0.4)))
+    assert math.isinf(b.nu_eff)
+    assert b.u_c == pytest.approx(0.5, rel=1e-15)  # 3-4-5 hand sum
+    assert b.k == pytest.approx(2.0, abs=1e-4)
+    assert Budget("y", 1.0, (Component("a", 0.3),), p=0.95).k == pytest.approx(stats.norm.ppf(0.975), rel=1e-12)
+
+
+def test_component_rules():
+    # Source: GUM 4.2.3 (s/sqrt(n), n - 1 dof) and F.2.2.1 (resolution q, u = q/sqrt(12)), from memory.
+    assert scatter_component(0.002, 9).u == pytest.approx(0.002 / 3, rel=1e-15)
+    assert scatter_component(0.002, 9).dof == 8
+    assert resolution_component("q", 0.001).u == pytest.approx(0.001 / math.sqrt(12), rel=1e-15)
+    assert Component("c", 2.0, sensitivity=-3.0).contribution == 6.0
+    with pytest.raises(UserError):
+        scatter_component(0.002, 1)
+    for bad in (dict(u=-1.0), dict(u=math.nan), dict(u=1.0, dof=0), dict(u=1.0, kind="C"),
+                dict(u=1.0, distribution="triangular"), dict(u=1.0, distribution="t")):
+        with pytest.raises(ValueError):
+            Component("bad", **bad)
+
+
+def test_reading_components_keep_resolution_only_below_one_count():
+    # Source: DESIGN.md rule (common practice): averaging beats the step only when the scatter is at
+    # least about one count.
+    names = lambda comps: [c.name for c in comps]  # noqa: E731
+    assert len(reading_components(0.001)) == 2
+    assert len(reading_components(0.001, 0.0005, 5)) == 3
+    assert names(reading_components(0.001, 0.002, 5)) == ["seating scatter"]
+
+
+def test_budget_as_dict_is_json_safe_and_table_converts_units():
+    # Source: RFC 8259 (JSON has no NaN/inf) via json.dumps(allow_nan=False); 25.4 mm per inch exactly.
+    b = radius_budget(_three_ball(), "concave", 0.5, reading_components(0.001, 0.0005, 10))
+    d = b.as_dict("in")
+    json.dumps(d, allow_nan=False)
+    assert d["U_in"] == pytest.approx(b.U / 25.4, rel=1e-15)
+    assert [c["dof"] for c in d["components"]][:2] == [9, None]
+    text = b.table("in")
+    assert f"{b.U / 25.4:.4g} in" in text and "leg spacing a" in text and "seating scatter" in text
+    assert json.loads(json.dumps(b.as_dict()))["value_mm"] == b.value
+
+
+def test_leg_sensitivity_vs_sympy():
+    # Source: sympy differentiation of R = (r^2 + s^2)/(2s) + d/2 with r = abc / sqrt((a+b+c)(-a+b+c)(a-b+c)(a+b-c)).
+    a, b, c, d, s = sympy.symbols("a b c d s", positive=True)
+    r = a * b * c / sympy.sqrt((a + b + c) * (-a + b + c) * (a - b + c) * (a + b - c))
+    R = (r**2 + s**2) / (2 * s) + d / 2
+    vals = {a: 70.02, b: 69.98, c: 70.01, d: 6.35, s: 0.5}
+    budget = radius_budget(_three_ball(), "concave", 0.5, [])
+    by_name = {comp.name: comp.sensitivity for comp in budget.components}
+    assert by_name["leg spacing a"] == pytest.approx(float(sympy.diff(R, a).subs(vals)), rel=1e-6)
+    assert by_name["leg spacing c"] == pytest.approx(float(sympy.diff(R, c).subs(vals)), rel=1e-6)
+    assert by_name["ball diameter"] == pytest.approx(float(sympy.diff(R, d).subs(vals)), rel=1e-6)
+    assert budget.value == pytest.approx(float(R.subs(vals)), rel=1e-12)
+
+
+@pytest.mark.parametrize("surface", ["concave", "convex"])
+def test_ring_edge_radius_enters_twice_vs_sympy(surface):
+    # Source: sympy.  The edge radius e moves the contact circle (r = o/2 - e concave, i/2 + e convex)
+    # and is the foot radius: R = (r^2 + s^2)/(2s) +- e.
+    e, s, o, i = sympy.symbols("e s o i", positive=True)
+    R = (((o / 2 - e) ** 2 + s**2) / (2 * s) + e) if surface == "concave" else (((i / 2 + e) ** 2 + s**2) / (2 * s) - e)
+    vals = {e: 0.5, s: 0.3, o: 76.0, i: 70.0}
+    budget = radius_budget(_ring(), surface, 0.3, [])
+    (edge,) = [comp for comp in budget.components if comp.name == "ring edge radius"]
+    assert edge.sensitivity == pytest.approx(float(sympy.diff(R, e).subs(vals)), rel=1e-6)
+    assert budget.value == pytest.approx(float(R.subs(vals)), rel=1e-12)
+
+
+@pytest.mark.parametrize("surface", ["concave", "convex"])
+def test_gum_agrees_with_monte_carlo_three_ball(surface):
+    # Source: JCGM 101:2008 (Monte Carlo) validating the JCGM 100:2008 law of propagation; agreement
+    # within a few per cent is expected for this nearly linear model.
+    sph = _three_ball()
+    comps = [Component("seating scatter", 0.0008), resolution_component("resolution", 0.001)]
+    b = radius_budget(sph, surface, 0.5, comps)
+    R = monte_carlo_radius(sph, surface, 0.5, comps, n=200_000, seed=1)
+    assert R.shape == (200_000,)
+    assert np.std(R, ddof=1) == pytest.approx(b.u_c, rel=0.03)
+    assert abs(np.mean(R) - b.value) < 0.05 * b.u_c
+    lo, hi = np.quantile(R, [0.5 - b.p / 2, 0.5 + b.p / 2])  # probabilistically symmetric interval (JCGM 101 7.7)
+    assert (hi - lo) / 2 == pytest.approx(b.U, rel=0.05)
+
+
+def test_gum_agrees_with_monte_carlo_ring_edge():
+    # Source: JCGM 101:2008 vs the linearised budget, for the input that enters both r and rho.
+    sph = _ring(u_edge=0.02, u_diam=0.004)
+    b = radius_budget(sph, "concave", 0.3, [])
+    R = monte_carlo_radius(sph, "concave", 0.3, [], n=100_000, seed=2)
+    assert np.std(R, ddof=1) == pytest.approx(b.u_c, rel=0.03)
+
+
+def test_monte_carlo_t_component_variance():
+    # Source: JCGM 101:2008 6.4.9.4 (from memory): the scaled-shifted t with nu dof and scale u has
+    # variance u^2 nu / (nu - 2); its GUM u is u.  Rectangular half-width sqrt(3) u (6.4.2.1).
+    sph = _three_ball(u_leg=0.0, u_ball=0.0)
+    nu = 6
+    comps = [Component("scatter", 0.001, dof=nu, kind="A", distribution="t")]
+    dRds = geometry.dradius_dsagitta(0.5, sph.contact_mm("concave")[0])
+    R = monte_carlo_radius(sph, "concave", 0.5, comps, n=200_000, seed=3)
+    assert np.std(R, ddof=1) == pytest.approx(abs(dRds) * 0.001 * math.sqrt(nu / (nu - 2)), rel=0.03)
+    flat = monte_carlo_radius(sph, "concave", 0.5, [Component("q", 0.001, distribution="rectangular")], n=100_000)
+    assert np.max(np.abs(flat - np.median(flat))) <= abs(dRds) * 0.001 * math.sqrt(3) * 1.01
+    assert np.std(flat, ddof=1) == pytest.approx(abs(dRds) * 0.001, rel=0.03)
+
+
+def test_monte_carlo_is_reproducible_and_refuses_zero_trials():
+    sph = _three_ball()
+    comps = [Component("s", 0.001)]
+    assert np.array_equal(monte_carlo_radius(sph, "concave", 0.5, comps, n=1000, seed=7),
+                          monte_carlo_radius(sph, "concave", 0.5, comps, n=1000, seed=7))
+    with pytest.raises(UserError):
+        monte_carlo_radius(sph, "concave", 0.5, comps, n=0)
+
+
+def test_seatings_needed_hand_worked():
+    # Source: hand-worked from GUM 4.2.3.  r = 40, s = 0.4: dR/ds = (0.16 - 1600)/0.32 = -4999.5;
+    # scatter 0.002 gives 9.999 mm per seating; target 5, other 3: room 25 - 9 = 16;
+    # n >= 9.999^2 / 16 = 6.249 -> 7.
+    assert seatings_needed(5.0, 0.002, 0.4, 40.0, 3.0) == 7
+    assert seatings_needed(5.0, 0.002, 0.4, 40.0, 5.0) is None
+    assert seatings_needed(5.0, 0.0, 0.4, 40.0) == 1
+    with pytest.raises(UserError):
+        seatings_needed(0.0, 0.002, 0.4, 40.0)
+
+
+@settings(max_examples=200, deadline=None)
+@given(target=st.floats(0.1, 50.0), scatter=st.floats(1e-5, 0.01), other_frac=st.floats(0.0, 0.99))
+def test_seatings_needed_is_the_least_that_works(target, scatter, other_frac):
+    # Source: definition, u(R)^2 = (dR/ds s/sqrt(n))^2 + other^2 (GUM eq. 10 with 4.2.3).
+    s, r = 0.4, 40.0
+    other = other_frac * target
+    n = seatings_needed(target, scatter, s, r, other)
+    u = lambda k: math.hypot(geometry.dradius_dsagitta(s, r) * scatter / math.sqrt(k), other)  # noqa: E731
+    assert u(n) <= target * (1 + 1e-9)
+    assert n == 1 or u(n - 1) > target * (1 - 1e-9)
+
+
+def test_legs_from_readings_share_the_ball_error_and_monte_carlo_agrees():
+    # Legs measured outside-to-outside are reading - d: all three move with the ball diameter d.
+    # The budget (central differences through the contact geometry) and a JCGM 101 Monte Carlo
+    # that draws the readings and d independently must agree, and u(R) from the instrument must
+    # exceed the value that treats legs and ball as independent (GUM 5.2: correlated inputs).
+    from logger.config.profile import parse_profile
+
+    def prof(sph):
+        return parse_profile({"unit": "mm", "spherometer": {"kind": "three-ball", "ball_diameter": 6.35, **sph},
+                              "indicator": {"resolution": 0.001},
+                              "uncertainty": {"leg_spacing": 0.01, "ball_diameter": 0.01}}, "t")
+
+    reads = prof({"leg_readings": [76.37, 76.33, 76.36], "readings": "outside"}).spherometer
+    centres = prof({"leg_spacings": [70.02, 69.98, 70.01]}).spherometer
+    s = 0.34
+    comps = [Component("seating scatter", 0.0003, kind="A")]  # normal: the comparison is about the legs
+    b_reads = radius_budget(reads, "concave", s, comps)
+    b_centres = radius_budget(centres, "concave", s, comps)
+    assert b_reads.value == pytest.approx(b_centres.value, rel=1e-12)
+    inst = lambda b: math.sqrt(sum(c.contribution ** 2 for c in b.components if c.kind == "B"))  # noqa: E731
+    assert inst(b_reads) > 1.5 * inst(b_centres)
+    draws = monte_carlo_radius(reads, "concave", s, comps, n=200_000, seed=3)
+    assert float(np.std(draws)) == pytest.approx(b_reads.u_c, rel=0.03)

@@ -1,0 +1,25 @@
+"""Run the pipeline on a virtual-indicator session in memory (no files, no real time)."""
+
+from __future__ import annotations
+
+from logger.formats.decode import LineSplitter
+from logger.live.pipeline import Pipeline, RunSettings
+from logger.analysis.seating import DetectorSettings
+from logger.analysis.session import AnalysisSettings
+
+
+def analyse_run(run, profile=None, analysis: AnalysisSettings | None = None) -> dict:
+    """Feed the run's bytes through the same splitter and pipeline a capture uses; return the summary."""
+    profile = profile or run.scenario.profile
+    settings = RunSettings(DetectorSettings.for_step(profile.indicator.resolution_mm), analysis or AnalysisSettings())
+    pipeline = Pipeline(profile, settings, [], 0.0, live=False)
+    splitter = LineSplitter()
+    t = 0.0
+    for t, data in run.lines():
+        for raw in splitter.feed(data):
+            pipeline.line(t, raw)
+    for raw in splitter.flush():
+        pipeline.line(t, raw)
+    for gap in run.truth.get("disconnects", []):
+        pipeline.gaps.append(gap)
+    return pipeline.finish(run.duration_s)

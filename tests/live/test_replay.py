@@ -1,0 +1,116 @@
+"""Replay through the command line: the run folder, determinism, and bad input."""
+
+from __future__ import annotations
+
+import json
+import math
+
+import numpy as np
+import pandas as pd
+from click.testing import CliRunner
+
+from tests.helpers.paths import EXAMPLE_PROFILE, run_saglog
+from logger.cli.main import main
+from logger.formats.recording import RecWriter
+
+START = 1_780_000_000.0
+
+
+def write_session(path, seed=1, levels=(0, 0, 0, -0.34, -0.34, -0.34, -0.34, 0, 0), rate=50, garbage=False):
+    """A small recording in the physical picture of the stand (invented data)."""
+    rng = np.random.default_rng(seed)
+    w = RecWriter(path, START, {"source": "test"})
+    t, dt = 0.0, 1.0 / rate
+    for level in levels:
+        for _ in range(rate):
+            t += dt
+            w.write(t, b"%+.3f mm\r" % (-1.5 + rng.normal(0, 0.001)))
+        for i in range(3 * rate):
+            t += dt
+            x = level + (-1.5 - level) * math.exp(-i * dt / 0.08) + rng.normal(0, 0.0006)
+            w.write(t, b"%+.3f mm\r" % (round(x / 0.001) * 0.001))
+            if garbage and i == 17:
+                w.write(t, b"\x00\xff\xfe#@!")
+    w.close()
+
+
+def test_replay_twice_gives_identical_files(tmp_path):
+    rec = tmp_path / "s.rec"
+    write_session(rec, garbage=True)
+    for out in ("a", "b"):
+        r = run_saglog("replay", rec, "--profile", EXAMPLE_PROFILE, "--out", tmp_path / out)
+        assert r.returncode == 0, r.stderr
+    for name in ("summary.json", "seatings.csv", "samples.csv"):
+        assert (tmp_path / "a" / name).read_bytes() == (tmp_path / "b" / name).read_bytes(), name
+    summary = json.loads((tmp_path / "a" / "summary.json").read_text())
+    assert summary["seatings_flat"] == 5 and summary["seatings_surface"] == 4
+    assert summary["bad_lines"] == 9
+    samples = pd.read_csv(tmp_path / "a" / "samples.csv")
+    assert len(samples) == summary["lines"] and (samples["state"] == "bad").sum() == 9
+    seatings = pd.read_csv(tmp_path / "a" / "seatings.csv")
+    assert list(seatings.columns[:11]) == ["index", "start", "end", "t_start_s", "t_end_s", "phase", "value_mm",
+                                           "spread_mm", "n", "accepted", "reason"]
+    assert pd.to_datetime(seatings["start"]).dt.tz is not None  # ISO 8601 UTC
+
+
+def test_all_garbage_is_counted_and_explained(tmp_path):
+    rec = tmp_path / "g.rec"
+    w = RecWriter(rec, START)
+    for i in range(500):
+        w.write(i * 0.01, bytes([0xFF, 0x00, 0x80 + i % 50]))
+    w.close()
+    r = CliRunner().invoke(main, ["replay", str(rec), "--profile", str(EXAMPLE_PROFILE), "--out", str(tmp_path / "o")])
+    assert r.exit_code == 0
+    s = json.loads((tmp_path / "o" / "summary.json").read_text())
+    assert s["status"] == "no readings" and s["bad_lines"] == 500 and "baud" in s["message"]
+
+
+def test_a_malformed_record_exits_2_and_keeps_what_came_before(tmp_path):
+    rec = tmp_path / "m.rec"
+    write_session(rec)
+    lines = rec.read_text().splitlines()
+    cut = len(lines) // 2
+    rec.write_text("\n".join(lines[:cut] + ["this is not a record"] + lines[cut:]) + "\n")
+    r = run_saglog("replay", rec, "--profile", EXAMPLE_PROFILE, "--out", tmp_path / "o")
+    assert r.returncode == 2 and "Traceback" not in r.stderr
+    assert len(r.stderr.strip().splitlines()) == 1 and f"m.rec:{cut + 1}" in r.stderr
+    samples = pd.read_csv(tmp_path / "o" / "samples.csv")
+    header_lines = sum(1 for x in lines[:cut] if x.startswith("#"))
+    assert len(samples) == cut - header_lines
+    assert json.loads((tmp_path / "o" / "summary.json").read_text())["seatings_flat"] >= 1
+
+
+def test_plain_capture_needs_a_rate(tmp_path):
+    raw = tmp_path / "plain.txt"
+    raw.write_bytes(b"".join(b"%+.3f\r\n" % v for v in [-1.5] * 50 + [0.0] * 100 + [-1.5] * 50))
+    r = run_saglog("replay", raw, "--profile", EXAMPLE_PROFILE, "--out", tmp_path / "o")
+    assert r.returncode == 2 and "--rate" in r.stderr
+    r = run_saglog("replay", raw, "--profile", EXAMPLE_PROFILE, "--out", tmp_path / "o", "--rate", 50)
+    assert r.returncode == 0, r.stderr
+    assert json.loads((tmp_path / "o" / "summary.json").read_text())["seatings_flat"] == 1
+
+
+def test_an_existing_run_is_not_overwritten(tmp_path):
+    rec = tmp_path / "s.rec"
+    write_session(rec)
+    assert run_saglog("replay", rec, "--profile", EXAMPLE_PROFILE, "--out", tmp_path / "o").returncode == 0
+    r = run_saglog("replay", rec, "--profile", EXAMPLE_PROFILE, "--out", tmp_path / "o")
+    assert r.returncode == 2 and "--force" in r.stderr
+
+
+def test_impossible_or_non_finite_options_are_refused_before_anything_runs(tmp_path):
+    rec = tmp_path / "s.rec"
+    write_session(rec)
+    runner = CliRunner()
+    base = ["replay", str(rec), "--profile", str(EXAMPLE_PROFILE), "--out", str(tmp_path / "o")]
+    for extra, word in [(["--lift", "nan"], "--lift"), (["--z-cut", "inf"], "--z-cut"), (["--settle", "nan"], "--settle"),
+                        (["--target-radius", "30"], "--target-radius"), (["--focal-ratio", "nan", "--diameter", "150"],
+                                                                          "--focal-ratio")]:
+        r = runner.invoke(main, base + extra)
+        assert r.exit_code == 2 and word in r.stderr and len(r.stderr.strip().splitlines()) == 1, (extra, r.stderr)
+    assert not (tmp_path / "o").exists()  # refused before the run folder was made
+
+
+def test_overflowing_numbers_are_a_one_line_error():
+    r = CliRunner().invoke(main, ["radius", "--profile", str(EXAMPLE_PROFILE), "--sagitta", "1e-200"])
+    assert r.exit_code == 2 and "out of range" in r.stderr and "Traceback" not in r.stderr

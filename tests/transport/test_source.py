@@ -1,0 +1,158 @@
+"""Serial sources on real transports: pseudo-terminals, loopback sockets, loop://."""
+
+from __future__ import annotations
+
+import errno
+import os
+import socket
+import subprocess
+import sys
+import threading
+from pathlib import Path
+
+import pytest
+import serial
+
+from logger.errors import DeviceGone, DeviceNotFound, UserError
+from logger.transport.serial_source import SerialSource, list_ports, open_error_message
+
+REPO = Path(__file__).resolve().parents[2]
+
+
+def run_cli(*args, **kw):
+    env = dict(os.environ, PYTHONPATH=str(REPO))
+    return subprocess.run([sys.executable, "-m", "logger", *args], capture_output=True, text=True, env=env,
+                          timeout=60, **kw)
+
+
+def test_missing_device_is_one_clear_line(tmp_path):
+    with pytest.raises(DeviceNotFound, match="no such port") as exc:
+        SerialSource(str(tmp_path / "ttyUSB9")).open()
+    assert isinstance(exc.value, UserError) and "\n" not in str(exc.value)
+
+
+@pytest.mark.parametrize("url,words", [("foo://x", "not a valid port or URL"),
+                                       ("socket://nohostport", "needs a host and a port")])
+def test_bad_urls(url, words):
+    with pytest.raises(DeviceNotFound, match=words):
+        SerialSource(url).open()
+
+
+def test_not_a_serial_port(tmp_path):
+    f = tmp_path / "plain-file"
+    f.write_text("x")
+    with pytest.raises(DeviceNotFound, match="not a serial port"):
+        SerialSource(str(f)).open()
+
+
+def test_connection_refused():
+    s = socket.socket()
+    s.bind(("127.0.0.1", 0))
+    port = s.getsockname()[1]
+    s.close()  # bound then closed: nothing listens there
+    with pytest.raises(DeviceNotFound, match="connection refused"):
+        SerialSource(f"socket://127.0.0.1:{port}").open()
+
+
+def test_busy_pty_is_reported():
+    master, slave = os.openpty()
+    path = os.ttyname(slave)
+    try:
+        with SerialSource(path):
+            with pytest.raises(DeviceNotFound, match="busy"):
+                SerialSource(path).open()  # the first holds an exclusive lock
+    finally:
+        os.close(slave)
+        os.close(master)
+
+
+def test_permission_message_names_dialout():
+    # The exception pyserial's POSIX backend raises for EACCES (its message format, pyserial 3.5).
+    exc = serial.SerialException(errno.EACCES, "could not open port /dev/ttyUSB0: [Errno 13] Permission denied")
+    msg = open_error_message("/dev/ttyUSB0", exc)
+    assert "permission denied" in msg and "dialout" in msg
+
+
+def test_bad_settings_are_user_errors():
+    for kw in ({"parity": "X"}, {"bytesize": 9}, {"stopbits": 3}, {"baudrate": 0}, {"baudrate": "fast"}):
+        with pytest.raises(UserError):
+            SerialSource("loop://", **kw)
+
+
+def test_settings_for_the_header():
+    s = SerialSource("loop://", baudrate=115200, bytesize=7, parity="e", stopbits=2, poll_command=b"?\r")
+    assert s.settings() == {"url": "loop://", "baudrate": 115200, "bytesize": 7, "parity": "E", "stopbits": 2,
+                            "poll": "b'?\\r' every 0.5 s"}
+
+
+def test_loop_url_block_reads():
+    with SerialSource("loop://", read_timeout_s=0.02) as src:
+        assert src.read_block() == b""  # timeout: nothing there
+        src._ser.write(b"1.000\r\n2.000\r\n")
+        got = b""
+        while len(got) < 14:
+            got += src.read_block()
+        assert got == b"1.000\r\n2.000\r\n"
+
+
+def test_poll_command_is_sent_over_a_socket():
+    lst = socket.socket()
+    lst.bind(("127.0.0.1", 0))
+    lst.listen(1)
+    received = bytearray()
+
+    def bridge():
+        conn, _ = lst.accept()
+        conn.settimeout(2.0)
+        while received.count(b"?\r") < 3:
+            data = conn.recv(100)
+            if not data:
+                break
+            received.extend(data)
+            conn.sendall(b"+0.125\r\n")  # answers each request like a polled indicator
+        conn.close()
+
+    th = threading.Thread(target=bridge, daemon=True)
+    th.start()
+    src = SerialSource(f"socket://127.0.0.1:{lst.getsockname()[1]}", poll_command=b"?\r", poll_interval_s=0.05)
+    src.open()
+    got = b""
+    with pytest.raises(DeviceGone):
+        while True:  # until the bridge hangs up after three requests
+            got += src.read_block()
+    src.close()
+    th.join(2)
+    lst.close()
+    assert bytes(received).startswith(b"?\r?\r?\r") and got.startswith(b"+0.125\r\n" * 3)
+
+
+def test_vanished_pty_raises_device_gone():
+    master, slave = os.openpty()
+    path = os.ttyname(slave)
+    os.close(slave)
+    src = SerialSource(path)
+    src.open()
+    os.write(master, b"1.0\n")
+    assert src.read_block() == b"1.0\n"
+    os.close(master)  # the adapter is pulled out
+    with pytest.raises(DeviceGone):
+        for _ in range(10):
+            src.read_block()
+    src.close()
+
+
+def test_ports_command_lists_what_pyserial_sees():
+    r = run_cli("ports")
+    assert r.returncode == 0, r.stderr
+    found = list_ports()
+    if found:
+        for p in found:
+            assert p["device"] in r.stdout
+    else:
+        assert "No serial ports found" in r.stdout
+
+
+def test_list_ports_shape():
+    for p in list_ports():
+        assert set(p) == {"device", "description", "hwid"} and all(isinstance(v, str) for v in p.values())
+
