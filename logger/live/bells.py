@@ -9,7 +9,7 @@ from __future__ import annotations
 import sys
 import threading
 
-from logger.analysis.session import FLAT
+from logger.analysis.phases import FLAT
 from logger.live.listener import Listener
 
 

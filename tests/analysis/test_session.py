@@ -17,7 +17,8 @@ from tests.helpers.exact_construction import three_ball_reading
 from logger.config.profile import parse_profile
 from logger.run.writer import json_text
 from logger.analysis.seating import Seating
-from logger.analysis.session import AnalysisSettings, analyse, fit_zero
+from logger.analysis.session import AnalysisSettings, analyse
+from logger.analysis.zero import fit_zero
 
 LEGS = (70.02, 69.98, 70.01)
 BALL = 6.35
