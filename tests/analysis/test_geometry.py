@@ -44,24 +44,34 @@ def test_three_ball_exact_construction(legs, rho_frac, ratio, surface, unit):
     ring_mm = float(np.linalg.norm(ball_centres(*legs_mm)[0, :2] - probe_axis(ball_centres(*legs_mm))))
     ball_d = 2 * rho_frac * min(legs_u) / 2
     prof = _profile_three_ball(legs_u, ball_d, unit)
-    r_mm, rho_mm = prof.contact_mm(surface)
+    rho_mm = to_mm(ball_d, unit) / 2  # the foot radius is half the ball diameter given here (not the code's)
+    r_mm, rho_code_mm = prof.contact_mm(surface)
     R_ball_sphere = ratio * ring_mm
     R_mm = R_ball_sphere + rho_mm if surface == "concave" else R_ball_sphere - rho_mm
     reading_mm = three_ball_reading(*legs_mm, rho_mm, R_mm, surface)
+    assert rho_code_mm == pytest.approx(rho_mm, rel=1e-12)
     assert r_mm == pytest.approx(ring_mm, rel=1e-11)  # circumradius vs the constructed axis distance
     assert geometry.radius_from_sagitta_mm(reading_mm, r_mm, rho_mm, surface) == pytest.approx(R_mm, rel=1e-9)
     assert geometry.probe_sagitta_mm(R_mm, r_mm, rho_mm, surface) == pytest.approx(reading_mm, rel=1e-8)
 
 
-def test_feet_sign_by_construction():
-    # Source: exact construction.  DESIGN.md warns a widely copied source has the concave sign reversed:
-    # with feet the concave radius is LARGER than the point-contact formula, the convex one SMALLER.
-    legs, rho, R = (60.0, 60.0, 60.0), 3.0, 1000.0
-    r = geometry.circumradius_mm(*legs)
+@pytest.mark.parametrize("ball_d", [6.35, 3.0, 12.7])
+def test_feet_sign_by_construction(ball_d):
+    # Source: exact construction (balls of radius ball_d / 2 placed on a sphere in space).  A widely
+    # copied source has the concave sign reversed (see the derivation in logger/analysis/geometry.py):
+    # with feet the concave radius is LARGER than the point-contact formula (r^2 + s^2) / (2 s), the
+    # convex one SMALLER, both by exactly the foot radius.
+    legs, R = (60.0, 60.0, 60.0), 1000.0
+    rho = ball_d / 2  # from the ball diameter given to this test
+    r = 60.0 / math.sqrt(3)  # equilateral triangle: circumradius a / sqrt(3) (textbook)
     for surface, sign in (("concave", +1), ("convex", -1)):
         s = three_ball_reading(*legs, rho, R, surface)
         point_contact = (r * r + s * s) / (2 * s)
-        assert R - point_contact == pytest.approx(sign * rho, rel=1e-9)
+        assert R - point_contact == pytest.approx(sign * rho, rel=1e-9)  # the construction itself
+        assert geometry.radius_from_sagitta_mm(s, r, rho, surface) == pytest.approx(R, rel=1e-12)
+        assert geometry.probe_sagitta_mm(R, r, rho, surface) == pytest.approx(s, rel=1e-10)
+        prof = _profile_three_ball(legs, ball_d, "mm")  # the profile turns the diameter into this radius
+        assert prof.contact_mm(surface) == pytest.approx((r, rho), rel=1e-14)
 
 
 @st.composite
@@ -108,10 +118,13 @@ def test_circumradius_vs_sympy(a, b, c):
 
 
 def test_circumradius_needle_triangle_vs_sympy():
-    # Source: sympy exact; a needle-like triangle where naive Heron loses digits (Kahan, from memory).
-    a, b, c = 100.0, 99.99, 0.02  # sympy.Rational of a float is its exact binary value
-    expected = float(Triangle(sss=tuple(sympy.Rational(x) for x in (a, b, c))).circumradius.evalf(40))
-    assert geometry.circumradius_mm(a, b, c) == pytest.approx(expected, rel=1e-9)
+    # Source: sympy exact; needle-like triangles where plain Heron, sqrt(k (k-a)(k-b)(k-c)) with
+    # k = (a+b+c)/2, loses digits (Kahan, from memory): 1.6e-12, 4e-11, 3e-11 off on these three.  The
+    # stable form keeps the result within a few units in the last place, so the bound is 1e-14.
+    for a, b, c in ((100.0, 99.99, 0.02), (100.0, 99.9999, 0.0002), (100.0, 99.99999, 0.0001001)):
+        exact = Triangle(sss=tuple(sympy.Rational(x) for x in (a, b, c)))  # Rational(float): its exact binary value
+        expected = float(exact.circumradius.evalf(40))
+        assert geometry.circumradius_mm(a, b, c) == pytest.approx(expected, rel=1e-14, abs=0)
 
 
 @pytest.mark.parametrize("legs", [(1, 2, 3), (1, 1, 5), (0, 1, 1), (-1, 2, 2), (math.nan, 1, 1), (math.inf, 1, 1),
@@ -170,7 +183,7 @@ def test_focal_length_is_half_radius_by_ray_trace(R):
 
 
 def test_dradius_dsagitta_vs_sympy():
-    # Source: sympy differentiation of R = (r^2 + s^2)/(2 s) +- rho (DESIGN.md relation).
+    # Source: sympy differentiation of R = (r^2 + s^2)/(2 s) +- rho (textbook sphere relation with feet).
     s, r, rho = sympy.symbols("s r rho", positive=True)
     for sign in (+1, -1):
         dR = sympy.diff((r**2 + s**2) / (2 * s) + sign * rho, s)
