@@ -19,7 +19,7 @@ def test_modified_z_constant_is_the_normal_quartile():
 @settings(max_examples=60, deadline=None)
 @given(st.lists(st.floats(-1, 1, allow_nan=False), min_size=3, max_size=40), st.floats(1e-6, 1e-2))
 def test_modified_z_against_scipy_mad(values, floor):
-    # MAD from scipy.stats.median_abs_deviation (scale=1), floored at the step as DESIGN.md asks
+    # MAD from scipy.stats.median_abs_deviation (scale=1), floored at the step (a quantised-reading trap, common practice)
     x = np.asarray(values)
     mad = max(stats.median_abs_deviation(x, scale=1.0), floor)
     expected = 0.6745 * (x - np.median(x)) / mad
@@ -55,12 +55,16 @@ def test_chauvenet_threshold():
     # "An Introduction to Error Analysis", ch. 6; the value follows from scipy.stats.norm)
     z_cut = stats.norm.isf(0.5 / 10 / 2)
     assert math.isclose(z_cut, 1.96, abs_tol=0.001)
-    x = np.array([0.0] * 5 + [1.0] * 4 + [0.5])
-    m, sd = x.mean(), x.std(ddof=1)
+    # Ten seatings (invented): the -6 lies beyond the cut (z = 2.085), the +6 just inside it
+    # (z = 1.950, the mean being 0.2), everything else well inside.
+    x = np.array([0.0, 1.0, -1.0, 0.0, 1.0, -1.0, 0.0, 2.0, -6.0, 6.0])
+    z = np.abs(x - x.mean()) / x.std(ddof=1)  # sample standard deviation (Taylor, ch. 4)
+    assert 2.0 < z[8] < 2.1 and z_cut - 0.02 < z[9] < z_cut and max(z[:8]) < 1.3
     verdicts = outliers.chauvenet(list(x), floor=1e-9)
-    for xi, (r, z, _) in zip(x, verdicts):
-        assert math.isclose(z, abs(xi - m) / sd)
-        assert r == (abs(xi - m) / sd > z_cut)
+    assert [i for i, (r, _, _) in enumerate(verdicts) if r] == [8]
+    for zi, (r, score, reason) in zip(z, verdicts):
+        assert math.isclose(score, zi, rel_tol=1e-12)
+        assert r == (10 * 2 * stats.norm.sf(zi) < 0.5) and bool(reason) == r
 
 
 def test_fewer_than_three_are_never_judged():
