@@ -105,7 +105,8 @@ def test_component_rules():
 
 
 def test_reading_components_keep_resolution_only_below_one_count():
-    # Source: DESIGN.md rule (common practice): averaging beats the step only when the scatter is at
+    # Source: dithering (common practice; Widrow and Kollar, Quantization Noise, 2008, from memory):
+    # averaging beats the step only when the scatter is at
     # least about one count.
     names = lambda comps: [c.name for c in comps]  # noqa: E731
     assert len(reading_components(0.001)) == 2
@@ -244,3 +245,35 @@ def test_legs_from_readings_share_the_ball_error_and_monte_carlo_agrees():
     assert inst(b_reads) > 1.5 * inst(b_centres)
     draws = monte_carlo_radius(reads, "concave", s, comps, n=200_000, seed=3)
     assert float(np.std(draws)) == pytest.approx(b_reads.u_c, rel=0.03)
+
+
+def _independent_monte_carlo(legs, ball_d, u_leg, u_ball, s, u_s, surface, n, seed):
+    """JCGM 101:2008 written here, not logger's: each leg, the ball and the sagitta drawn normal
+    (6.4.7) and pushed through the textbook relations: r = abc / sqrt((a+b+c)(-a+b+c)(a-b+c)(a+b-c))
+    (circumradius from Heron) and R = (r^2 + s^2) / (2 s) +- d / 2 (feet: + concave, - convex)."""
+    rng = np.random.default_rng(seed)
+    a, b, c = (rng.normal(x, u_leg, n) for x in legs)
+    d = rng.normal(ball_d, u_ball, n)
+    sag = rng.normal(s, u_s, n)
+    r = a * b * c / np.sqrt((a + b + c) * (-a + b + c) * (a - b + c) * (a + b - c))
+    return (r * r + sag * sag) / (2 * sag) + (d / 2 if surface == "concave" else -d / 2)
+
+
+@pytest.mark.parametrize("surface", ["concave", "convex"])
+def test_monte_carlo_where_the_legs_dominate(surface):
+    # Source: JCGM 101:2008, an independent Monte Carlo written in this test (above).  Caliper-measured
+    # legs of u = 0.05 mm and a sagitta known to 0.1 um: the instrument's Type B terms carry almost
+    # all of u_c, so leaving them out of the budget, or drawing them wrongly in the code's Monte Carlo,
+    # shows.  With 400 000 trials the standard deviation is known to about 0.1 % (sd of a sample sd:
+    # 1/sqrt(2 n)); the model is nearly linear here, so 1 % is an honest bound.
+    legs, ball_d, u_leg, u_ball, s, u_s = (70.02, 69.98, 70.01), 6.35, 0.05, 0.02, 0.5, 0.0001
+    sph = _three_ball(u_leg=u_leg, u_ball=u_ball)
+    comps = [Component("sagitta", u_s)]
+    ref = _independent_monte_carlo(legs, ball_d, u_leg, u_ball, s, u_s, surface, 400_000, seed=11)
+    sagitta_only = _independent_monte_carlo(legs, ball_d, 0.0, 0.0, s, u_s, surface, 400_000, seed=12)
+    assert np.std(sagitta_only) < 0.3 * np.std(ref)  # the legs dominate, by the test's own propagation
+    b = radius_budget(sph, surface, s, comps)
+    assert b.u_c == pytest.approx(float(np.std(ref, ddof=1)), rel=0.01)
+    code_mc = monte_carlo_radius(sph, surface, s, comps, n=400_000, seed=13)
+    assert float(np.std(code_mc, ddof=1)) == pytest.approx(float(np.std(ref, ddof=1)), rel=0.01)
+    assert float(np.mean(code_mc)) == pytest.approx(float(np.mean(ref)), abs=0.02 * b.u_c)
