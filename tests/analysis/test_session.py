@@ -87,6 +87,53 @@ def test_zero_fit_against_scipy_linregress():
     assert math.isclose(z.u_mm, resid_sd / math.sqrt(len(t)), rel_tol=1e-9)
 
 
+def _line_se(t_flats, x_flats, t):
+    """Textbook regression (e.g. Draper & Smith, Applied Regression Analysis, ch. 1; from memory): the
+    standard error of a fitted line's value at t is s sqrt(1/n + (t - tbar)^2 / Sxx), s the residual
+    standard deviation on n - 2 degrees of freedom.  Written here, not taken from logger."""
+    t_f, x_f = np.asarray(t_flats, float), np.asarray(x_flats, float)
+    n, tbar = len(t_f), t_f.mean()
+    sxx = float(np.sum((t_f - tbar) ** 2))
+    slope = float(np.sum((t_f - tbar) * (x_f - x_f.mean())) / sxx)
+    resid = x_f - (x_f.mean() + slope * (t_f - tbar))
+    s = math.sqrt(float(np.sum(resid**2)) / (n - 2))
+    return s * math.sqrt(1.0 / n + (t - tbar) ** 2 / sxx)
+
+
+def test_zero_uncertainty_away_from_the_flats_mean_time():
+    # Source: the closed form above, and numpy.polyfit's covariance matrix (reference library; it
+    # scales by the residuals over n - 2): var(a t + b) = [t 1] C [t 1]^T.
+    from logger.analysis.zero import zero_u_at
+
+    rng = np.random.default_rng(3)
+    t = np.array([1.0, 6.0, 11.0, 16.0, 80.0, 85.0])
+    x = 0.01 + 2e-5 * t + rng.normal(0, 3e-4, len(t))
+    z = fit_zero(t, x, True, None)
+    coef, cov = np.polyfit(t, x, 1, cov=True)
+    for at in (t.mean(), 40.0, 0.0, 150.0):  # at the mean time, inside, at the start, far beyond
+        v = np.array([at, 1.0])
+        assert math.isclose(zero_u_at(z, t, at), _line_se(t, x, at), rel_tol=1e-9)
+        assert math.isclose(zero_u_at(z, t, at), math.sqrt(v @ cov @ v), rel_tol=1e-9)
+    assert zero_u_at(z, t, 150.0) > 2 * zero_u_at(z, t, t.mean())  # the second term matters here
+
+
+def test_session_zero_u_at_the_surface_mean_time():
+    # An uneven bracket: five flats before, one after; the surface seatings' mean time is far from
+    # the flats' mean time, so the session's zero term must follow the line's standard error there
+    # (closed form above), not the value at the flats' own mean time.
+    rng = np.random.default_rng(8)
+    seatings, _ = session(2400, "concave", flats_before=5, surface_n=8, flats_after=1, scatter=0.0015, rng=rng,
+                          drift_mm_per_s=2e-5)
+    res = analyse(seatings, make_profile(), AnalysisSettings())
+    flats = [x for x in seatings if x.index < 5 or x.index >= 13]
+    t_f = [x.t_mid_s for x in flats]
+    t_surf = float(np.mean([x.t_mid_s for x in seatings if 5 <= x.index < 13]))
+    assert res.summary["seatings_flat"] == 6 and res.summary["seatings_surface"] == 8
+    expected = _line_se(t_f, [x.value_mm for x in flats], t_surf)
+    assert math.isclose(res.summary["zero_u_mm"], expected, rel_tol=1e-9)
+    assert expected > 1.2 * _line_se(t_f, [x.value_mm for x in flats], float(np.mean(t_f)))
+
+
 def test_grit_on_the_flat_is_rejected_with_a_reason_and_kept():
     seatings, _ = session(2400, "concave")
     v = seatings[1]
