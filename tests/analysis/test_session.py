@@ -11,7 +11,9 @@ import math
 
 import numpy as np
 import pytest
+import sympy
 from hypothesis import given, settings, strategies as st
+from scipy import stats
 
 from tests.helpers.exact_construction import three_ball_reading
 from logger.config.profile import parse_profile
@@ -188,20 +190,53 @@ def test_flat_first_for_a_very_shallow_curve():
     assert s["seatings_surface"] == 8 and math.isclose(s["sagitta_mm"], s_true, rel_tol=1e-6)
 
 
-def test_budget_combines_as_gum_equation_10():
-    # u_c^2 = sum (c_i u_i)^2 for uncorrelated inputs (JCGM 100:2008, eq. 10), computed here by hand
+# The radius as a function of the instrument's inputs, for sensitivities by sympy: the textbook
+# circumradius (Heron) and R = (r^2 + s^2) / (2 s) + d / 2 for a concave surface with ball feet.
+_A, _B, _C, _D, _S = sympy.symbols("a b c d s", positive=True)
+_R_CONCAVE = ((_A * _B * _C) ** 2 / ((_A + _B + _C) * (-_A + _B + _C) * (_A - _B + _C) * (_A + _B - _C)) + _S**2) / (
+    2 * _S) + _D / 2
+# No [uncertainty] in make_profile: a caliper of +-0.02 mm read as a rectangular half-width,
+# u = 0.02 / sqrt(3) mm for each leg and the ball (common practice, from memory).
+_U_CALIPER = 0.02 / math.sqrt(3)
+
+
+def _independent_budget(seatings, flat_idx, surf_idx, q=0.001, p=0.9545):
+    """u_c, nu_eff and U of a concave session's radius, rebuilt here from the raw seatings (GUM)."""
+    flats = [x for x in seatings if x.index in flat_idx]
+    surf = [x for x in seatings if x.index in surf_idx]
+    t_f, x_f = np.array([x.t_mid_s for x in flats]), np.array([x.value_mm for x in flats])
+    slope, icpt = np.polyfit(t_f, x_f, 1)  # the zero line through the bracketing flats
+    sag = np.array([(icpt + slope * x.t_mid_s) - x.value_mm for x in surf])  # concave, in-positive
+    n, n_f, t_s = len(sag), len(flats), float(np.mean([x.t_mid_s for x in surf]))
+    s_mean, sd = float(sag.mean()), float(sag.std(ddof=1))
+    flat_sd = math.sqrt(float(np.sum((x_f - (icpt + slope * t_f)) ** 2)) / (n_f - 2))
+    u_a, u_zero = sd / math.sqrt(n), _line_se(t_f, x_f, t_s)  # GUM 4.2.3; textbook regression
+    # each reading's step q / sqrt(12) (GUM F.2.2.1) stays while that reading scatters by under a count
+    u_res2 = (q * q / 12) * ((sd < q) + (flat_sd < q))
+    vals = {_A: LEGS[0], _B: LEGS[1], _C: LEGS[2], _D: BALL, _S: s_mean}
+    dR = {x: float(sympy.diff(_R_CONCAVE, x).subs(vals)) for x in (_A, _B, _C, _D, _S)}
+    inst2 = sum((dR[x] * _U_CALIPER) ** 2 for x in (_A, _B, _C, _D))
+    terms_a = [(abs(dR[_S]) * u_a, n - 1), (abs(dR[_S]) * u_zero, n_f - 2)]  # Type A with their dof
+    u_c = math.sqrt(sum(c * c for c, _ in terms_a) + dR[_S] ** 2 * u_res2 + inst2)  # GUM eq. 10
+    nu_eff = u_c**4 / sum(c**4 / nu for c, nu in terms_a if c > 0) if any(c > 0 for c, _ in terms_a) else math.inf
+    k = stats.norm.ppf(0.5 + p / 2) if math.isinf(nu_eff) else stats.t.ppf(0.5 + p / 2, nu_eff)  # GUM G.2b, G.3
+    return float(_R_CONCAVE.subs(vals)), u_c, nu_eff, k * u_c
+
+
+def test_budget_rebuilt_independently_per_gum():
+    # JCGM 100:2008: u_c^2 = sum (c_i u_i)^2 (eq. 10), Welch-Satterthwaite (G.2b), k from Student t;
+    # every term rebuilt above from the raw seatings, sympy sensitivities and the caliper default.
     rng = np.random.default_rng(11)
     seatings, _ = session(2400, "concave", scatter=0.0015, rng=rng)
     res = analyse(seatings, make_profile(), AnalysisSettings())
-    sag = np.array([d.sagitta_mm for d in res.decisions if d.phase == "surface" and d.accepted])
-    u_a = sag.std(ddof=1) / math.sqrt(len(sag))
-    # scatter above one count: the step is dithered away, no resolution term (DESIGN.md, common practice)
+    assert res.summary["seatings_rejected"] == 0
+    R, u_c, nu_eff, U = _independent_budget(seatings, {0, 1, 2, 3, 12, 13, 14}, set(range(4, 12)))
+    assert math.isclose(res.summary["radius_mm"], R, rel_tol=1e-9)
+    assert math.isclose(res.summary["radius_u_mm"], u_c, rel_tol=1e-6)
+    assert math.isclose(res.summary["dof_eff"], nu_eff, rel_tol=1e-6)
+    assert math.isclose(res.summary["radius_U_mm"], U, rel_tol=1e-6)
+    # scatter above one count: the step is dithered away, no resolution term (common practice)
     assert not any("resolution" in c.name for c in res.budget.components)
-    u_zero = res.summary["zero_u_mm"]
-    u_s = math.sqrt(u_a**2 + u_zero**2)
-    assert math.isclose(res.summary["sagitta_u_mm"], u_s, rel_tol=1e-9)
-    contributions = [c.contribution for c in res.budget.components]
-    assert math.isclose(res.budget.u_c, math.sqrt(sum(c * c for c in contributions)), rel_tol=1e-12)
 
 
 def test_same_count_is_said_and_resolution_kept():
@@ -209,11 +244,15 @@ def test_same_count_is_said_and_resolution_kept():
     q = 0.001
     seatings = [Seating(s.index, s.t_start_s, s.t_end_s, round(s.value_mm / q) * q, 0.0, 100) for s in seatings]
     s = analyse(seatings, make_profile(), AnalysisSettings()).summary
-    assert s["same_count"] is True and s["radius_U_mm"] > 0
+    assert s["same_count"] is True
     assert "same count" in s["message"]
     # the resolution stays in the budget: q / sqrt(12) per reading, rectangular (GUM F.2.2.1)
     res_terms = [b for b in s["budget"] if "resolution" in b["name"]]
     assert len(res_terms) == 2 and all(math.isclose(b["u_mm"], q / math.sqrt(12)) for b in res_terms)
+    # and U is what the GUM gives for two step terms and the instrument, no scatter: k = 2 (nu infinite)
+    _, u_c, nu_eff, U = _independent_budget(seatings, {0, 1, 2, 3, 12, 13, 14}, set(range(4, 12)), q)
+    assert nu_eff > 1e9 and (s["dof_eff"] is None or s["dof_eff"] > 1e9)  # no scatter left: nu about infinite
+    assert math.isclose(s["radius_u_mm"], u_c, rel_tol=1e-6) and math.isclose(s["radius_U_mm"], U, rel_tol=1e-6)
 
 
 def _seatings(values, spread=0.0005):
