@@ -9,9 +9,11 @@ import tempfile
 from pathlib import Path
 
 import pytest
+import sympy
 from click.testing import CliRunner
 from hypothesis import given, settings
 from hypothesis import strategies as st
+from scipy import stats
 from scipy.optimize import brentq
 
 from tests.helpers.exact_construction import three_ball_reading
@@ -125,8 +127,24 @@ def test_radius_human_output_and_budget():
 
 def test_radius_inches_and_zero_u():
     out = ok_json("radius", "--profile", RING_IN, "--sagitta", "0.01", "--zero-u", "0.00002")
-    assert out["unit"] == "in" and out["budget"]["U_in"] > 0
+    assert out["unit"] == "in"
     assert any(c["name"] == "zero (flat seatings)" for c in out["budget"]["components"])
+    # Source: JCGM 100:2008 eq. 10 rebuilt here, in inches, from the profile file's own numbers
+    # (logger/config/profiles/example-ring-inch.toml: outer 3.000, edge 0.010, u 0.0004 and 0.002,
+    # step 0.00005).  A concave surface bears on the outer edge (common practice):
+    # R = ((o/2 - e)^2 + s^2) / (2 s) + e, sensitivities by sympy.  The sagitta carries the zero's
+    # u and two reading steps q / sqrt(12) (GUM F.2.2.1: no scatter given); every dof is infinite,
+    # so k is the normal quantile for 95.45 %.
+    o, e, s_ = sympy.symbols("o e s", positive=True)
+    R = ((o / 2 - e) ** 2 + s_**2) / (2 * s_) + e
+    vals = {o: 3.0, e: 0.010, s_: 0.01}
+    d = {x: float(sympy.diff(R, x).subs(vals)) for x in (o, e, s_)}
+    q = 0.00005
+    u_c = math.sqrt((d[s_] ** 2) * (0.00002**2 + 2 * q * q / 12) + (d[o] * 0.0004) ** 2 + (d[e] * 0.002) ** 2)
+    assert out["radius"] == pytest.approx(float(R.subs(vals)), rel=1e-12)
+    assert out["radius_u"] == pytest.approx(u_c, rel=1e-6)
+    assert out["radius_U"] == pytest.approx(stats.norm.ppf(0.5 + 0.9545 / 2) * u_c, rel=1e-6)
+    assert out["budget"]["U_in"] == out["radius_U"]
 
 
 def test_plan_human_and_seatings():
