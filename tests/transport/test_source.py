@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import errno
+import json
 import os
 import socket
 import subprocess
@@ -141,18 +142,35 @@ def test_vanished_pty_raises_device_gone():
     src.close()
 
 
-def test_ports_command_lists_what_pyserial_sees():
+def _pyserial_ports():
+    """The reference: pyserial's own enumeration (serial.tools.list_ports.comports), called here."""
+    import serial.tools.list_ports
+
+    return sorted(((p.device, p.description or "", p.hwid or "") for p in serial.tools.list_ports.comports()))
+
+
+def test_ports_json_is_exactly_what_pyserial_sees():
+    # Compared as whole lists, so an empty answer on a machine with ports (or an invented port on
+    # one without) fails.  This machine lists /dev/ttyS0; on one with no port the empty list is what
+    # pyserial must also say.
+    r = run_cli("ports", "--json")
+    assert r.returncode == 0, r.stderr
+    got = json.loads(r.stdout)
+    assert all(set(p) == {"device", "description", "hwid"} and all(isinstance(v, str) for v in p.values())
+               for p in got)
+    assert [(p["device"], p["description"], p["hwid"]) for p in got] == _pyserial_ports()
+    assert list_ports() == got
+
+
+def test_ports_human_output_has_one_line_per_port():
     r = run_cli("ports")
     assert r.returncode == 0, r.stderr
-    found = list_ports()
-    if found:
-        for p in found:
-            assert p["device"] in r.stdout
-    else:
-        assert "No serial ports found" in r.stdout
-
-
-def test_list_ports_shape():
-    for p in list_ports():
-        assert set(p) == {"device", "description", "hwid"} and all(isinstance(v, str) for v in p.values())
-
+    lines = r.stdout.strip().splitlines()
+    ref = _pyserial_ports()
+    if not ref:  # nothing plugged in: one line saying so, and how to get a virtual indicator
+        assert len(lines) == 1 and lines[0].startswith("No serial ports found") and "simulate --pty" in lines[0]
+        return
+    assert len(lines) == len(ref) + 1 and lines[-1].startswith("Give one of these to --port")
+    for (device, description, hwid), line in zip(ref, lines):
+        assert line.split()[0] == device and description in line
+        assert (f"[{hwid}]" in line) == (hwid not in ("", "n/a"))  # a hardware id only when there is one
