@@ -21,7 +21,8 @@ import time
 import pandas as pd
 
 from tests.helpers.paths import EXAMPLE_PROFILE, ROOT
-from logger.live.capture import capture
+from logger.live.capture import Stop, capture
+from logger.live.listener import Listener
 from logger.live.plainlog import PlainLog
 from logger.live.pipeline import RunSettings
 from logger.live.replay import replay_file
@@ -29,6 +30,7 @@ from logger.analysis.seating import DetectorSettings
 from logger.analysis.session import AnalysisSettings
 from logger.simulator import PtyServer, TcpServer, load_scenario, simulate
 
+_LEADING_NUMBER = re.compile(r"[+-]?[0-9]+(\.[0-9]+)?")
 ISO_LINE = re.compile(r"^\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d\.\d{6}Z (seated|seating \d+ on the (flat|surface): "
                       r"(accepted|rejected \(.+\))|radius .+)$")
 
@@ -44,32 +46,85 @@ def settings_for(profile):
     return RunSettings(DetectorSettings.for_step(profile.indicator.resolution_mm), AnalysisSettings())
 
 
+class UntilServed(Listener):
+    """Stops the capture once the virtual indicator has sent its whole session and a read after that
+    brought nothing: an end that holds however slowly either side is scheduled (no fixed duration)."""
+
+    def __init__(self, server, stop: Stop):
+        self.server, self.stop, self.quiet_ticks = server, stop, 0
+
+    def sample(self, sample) -> None:
+        self.quiet_ticks = 0
+
+    def tick(self, t_s: float) -> None:
+        self.quiet_ticks = self.quiet_ticks + 1 if self.server.wait(0) else 0
+        if self.quiet_ticks >= 2:  # a whole read (50 ms timeout) after the end brought no line
+            self.stop.requested = True
+
+
+def _recorded_values(rec_text: str) -> list[list[float]]:
+    """Values of the received lines, one list per stretch between the capture's gaps, read from
+    stream.rec here (seconds, TAB, the line; comments start with '#'; docs/streams.md)."""
+    stretches: list[list[float]] = [[]]
+    for line in rec_text.splitlines():
+        if line.startswith("# gap "):
+            stretches.append([])
+        elif (m := _LEADING_NUMBER.match(line.partition("\t")[2])) and not line.startswith("#"):
+            stretches[-1].append(float(m.group()))
+    return stretches
+
+
+def _same_seatings(rows, truth_seatings) -> bool:
+    """The files' rows are these planned seatings, in order, accepted, in their phase, at their value."""
+    return len(rows) == len(truth_seatings) and all(
+        bool(r.accepted) and r.phase == t["phase"] and abs(r.value_mm - t["true_value_mm"]) < 0.003
+        for r, t in zip(rows.itertuples(), truth_seatings))
+
+
 def test_capture_equals_replay_and_survives_a_replug(tmp_path):
     # unplugged while the instrument is lifted, between the 4th and 5th seating
-    run = short_session(surface_seatings=5, lifted_s=1.0, disconnect_at_s=11.85, disconnect_for_s=0.6)
+    run = short_session(surface_seatings=5, lifted_s=1.0, disconnect_at_s=11.95, disconnect_for_s=0.4)
     profile = run.scenario.profile
     link = tmp_path / "ttyINDICATOR"  # a udev-style symlink the capture names; re-pointed on replug
     out = tmp_path / "cap"
     log = io.StringIO()
-    with PtyServer(run, link_path=str(link)):
-        summary = capture(str(link), profile, settings_for(profile), out, listeners=[PlainLog(profile.unit, log)],
-                          duration_s=run.duration_s + 1.0, wait_s=5)
+    stop = Stop()
+    with PtyServer(run, link_path=str(link)) as server:
+        summary = capture(str(link), profile, settings_for(profile), out, stop=stop, wait_s=5,
+                          listeners=[PlainLog(profile.unit, log), UntilServed(server, stop)],
+                          duration_s=run.duration_s + 120.0)  # a bound only; UntilServed ends it
     assert len(summary["gaps"]) == 1 and "# gap " in (out / "stream.rec").read_text()
+    # Whatever the scheduling: every seating the capture received whole is in the files, accepted, in
+    # its phase, at its value (3 counts), in order: before the gap the planned seatings from the
+    # first, after it the planned ones up to the last.  Received whole is read from stream.rec here:
+    # the spindle crossing a level between its stop and the work, down (placed) and up (lifted).
+    # A seating in progress at the cut, or already down when the capture came back, may be there
+    # or not, but never wrong.
     seatings = pd.read_csv(out / "seatings.csv")
-    gap = run.truth["disconnects"][0]
-    untouched = [s for s in run.truth["seatings"]
-                 if s["t_end_s"] < gap["t_start_s"] - 0.05 or s["t_start_s"] > gap["t_end_s"] + 0.3]
-    # every seating held in full while the device was there is in the files, accepted, in its phase
-    # (times: the capture's clock starts when it opens the port, the simulator's when it is opened)
-    for s in untouched:  # matched by overlap of the seated windows
-        hit = seatings[(seatings.t_start_s < s["t_end_s"] + 0.3) & (seatings.t_end_s > s["t_start_s"])]
-        assert len(hit) == 1 and bool(hit.accepted.iloc[0]) and hit.phase.iloc[0] == s["phase"], s
+    gap = summary["gaps"][0]
+    pre_rows, post_rows = seatings[seatings.t_end_s <= gap["t_start_s"]], seatings[seatings.t_start_s >= gap["t_end_s"]]
+    assert len(pre_rows) + len(post_rows) == len(seatings) and len(post_rows) >= 1
+    planned, cut = run.truth["seatings"], run.truth["disconnects"][0]
+    pre = [x for x in planned if x["t_end_s"] < cut["t_start_s"]]
+    post = [x for x in planned if x["t_start_s"] > cut["t_end_s"]]
+    assert len(pre) == 4 and len(post) == 5
+    before, after = _recorded_values((out / "stream.rec").read_text())
+    level = run.truth["stop_mm"] + 0.5  # below: the spindle near its stop, lifted
+    down_b, down_a = [v > level for v in before], [v > level for v in after]
+    lifted_whole = sum(a and not b for a, b in zip(down_b, down_b[1:]))  # placed and lifted again
+    placed_after = sum(b and not a for a, b in zip(down_a, down_a[1:]))  # placed after the reopening
+    assert not down_b[0] and not down_a[-1]  # the session starts and ends lifted
+    assert _same_seatings(pre_rows, pre[:lifted_whole]) or (
+        down_b[-1] and _same_seatings(pre_rows, pre[:lifted_whole + 1]))
+    assert _same_seatings(post_rows, post[len(post) - placed_after:]) or (
+        down_a[0] and _same_seatings(post_rows, post[len(post) - placed_after - 1:]))
     # the same recording replayed gives the very same files
     again = replay_file(out / "stream.rec", profile, settings_for(profile), tmp_path / "again")
     assert again == summary
     for name in ("summary.json", "seatings.csv", "samples.csv"):
         assert (out / name).read_bytes() == (tmp_path / "again" / name).read_bytes(), name
-    # and the radius is within its stated uncertainty
+    # and the radius is within its stated uncertainty.  Smoke check only: one seeded session inside
+    # U is a ~95 % event; the coverage study (tests/analysis/test_coverage.py) is the real check.
     assert abs(summary["radius_mm"] - run.truth["radius_mm"]) <= summary["radius_U_mm"]
     # the plain (non-terminal) output: one timestamped event per line
     lines = log.getvalue().splitlines()
@@ -136,15 +191,21 @@ def test_an_indicator_that_answers_only_when_asked(tmp_path):
     # a polled indicator (common practice for some models): nothing comes unless the logger asks
     run = short_session(rate_hz=100.0, poll="?\\r")
     profile = run.scenario.profile
+    stop = Stop()
     with PtyServer(run) as server:
-        summary = capture(server.path, profile, settings_for(profile), tmp_path / "p",
-                          listeners=[PlainLog(profile.unit, io.StringIO())], duration_s=run.duration_s + 1.0, wait_s=5,
-                          poll_command=b"?\r", poll_interval_s=0.05)
+        summary = capture(server.path, profile, settings_for(profile), tmp_path / "p", stop=stop, wait_s=5,
+                          listeners=[PlainLog(profile.unit, io.StringIO()), UntilServed(server, stop)],
+                          duration_s=run.duration_s + 120.0, poll_command=b"?\r", poll_interval_s=0.05)
+        answers = server.lines_sent  # the indicator sends a line only in answer to a request
     c = run.truth["counts"]
     assert (summary["seatings_flat"], summary["seatings_surface"]) == (c["expected_accepted_flat"],
                                                                        c["expected_accepted_surface"])
-    # about one answer per request: 20 a second, far fewer than the 100 a second it holds
-    assert 5 * run.duration_s <= summary["lines"] <= 25 * (run.duration_s + 1.0)
+    # Whatever the scheduling: the lines received are exactly the answers (UntilServed ends the
+    # capture only after the indicator is done and a read brought nothing more), and the capture
+    # never asked more often than every 0.05 s, so it holds at most 20 lines a second of its run
+    # (the indicator shows 100 a second).  The answer rate itself is timing: not tested here.
+    assert 0 < answers == summary["lines"]
+    assert summary["lines"] <= summary["t_end_s"] / 0.05 + 2
     assert "# poll: b'?\\r' every 0.05 s" in (tmp_path / "p" / "stream.rec").read_text()  # settings in the header
 
 

@@ -21,6 +21,8 @@ def test_demo_runs_the_whole_job(tmp_path):
                                                                        c["expected_accepted_surface"])
     assert summary["seatings_rejected"] == c["grit"]  # the grain of grit is thrown out, with its reason
     assert summary["surface"] == "concave" and summary["target_radius_mm"] == 2400.0
+    # Smoke check only: one seeded session inside U is a ~95 % event, not a proof of coverage; the
+    # real check is the 204-session study in tests/analysis/test_coverage.py.
     assert abs(summary["radius_mm"] - truth["radius_mm"]) <= summary["radius_U_mm"]
     for name in ("stream.rec", "samples.csv", "seatings.csv", "settings.json"):
         assert (out / name).stat().st_size > 0
