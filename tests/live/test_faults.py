@@ -11,8 +11,8 @@ Outside references used below:
 * the CSV injection guard: a cell starting with = + - @ TAB or CR is run as a
   formula by common spreadsheets (OWASP "CSV Injection" note, from memory);
 * kill -9 (SIGKILL) cannot be caught, so only what is on disk counts (POSIX);
-* ENOSPC / EROFS come from a real tmpfs (Linux mount(8); needs root, which
-  this suite's sandbox has).
+* ENOSPC / EROFS come from a real tmpfs (Linux mount(8)); those tests need root
+  (CI runs as root) and say so when mount fails.
 """
 
 from __future__ import annotations
@@ -33,6 +33,7 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
+import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
@@ -364,14 +365,23 @@ def test_kill_9_at_20_random_moments_leaves_readable_files(tmp_path):
 # a full disk and a read-only folder
 
 
+def mount(*args: str) -> None:
+    """mount(8) or umount(8); these tests need root (CI runs the suite as root; see DEVELOPERS.md)."""
+    r = subprocess.run(list(args), capture_output=True, text=True)
+    if r.returncode != 0:
+        pytest.fail(f"{' '.join(args)} failed ({' '.join(r.stderr.split()) or r.returncode}): the disk-full and "
+                    f"read-only tests mount a tmpfs or a bind mount and need root (uid {os.geteuid()} here); "
+                    "run them as root, as CI does", pytrace=False)
+
+
 @contextmanager
 def tmpfs(path: Path, size: str):
     path.mkdir()
-    subprocess.run(["mount", "-t", "tmpfs", "-o", f"size={size}", "tmpfs", str(path)], check=True)
+    mount("mount", "-t", "tmpfs", "-o", f"size={size}", "tmpfs", str(path))
     try:
         yield path
     finally:
-        subprocess.run(["umount", "-l", str(path)], check=True)
+        mount("umount", "-l", str(path))
 
 
 def one_line_error(stderr: str, *words):
@@ -408,12 +418,12 @@ def test_disk_full_during_capture_gives_one_line_and_keeps_what_was_written(tmp_
 @contextmanager
 def read_only_bind(path: Path):
     """The folder made read-only under a running program: a read-only bind mount over itself (mount(8))."""
-    subprocess.run(["mount", "--bind", str(path), str(path)], check=True)
+    mount("mount", "--bind", str(path), str(path))
     try:
-        subprocess.run(["mount", "-o", "remount,bind,ro", str(path)], check=True)
+        mount("mount", "-o", "remount,bind,ro", str(path))
         yield path
     finally:
-        subprocess.run(["umount", "-l", str(path)], check=True)
+        mount("umount", "-l", str(path))
 
 
 def test_read_only_folder_mid_capture_gives_one_line_and_keeps_what_was_written(tmp_path):
@@ -444,7 +454,7 @@ def test_read_only_folder_from_the_start(tmp_path):
     write_rec(tmp_path / "s.rec", timed(stream.lines))
     with tmpfs(tmp_path / "ro", "1m") as fs:
         (fs / "run").mkdir()
-        subprocess.run(["mount", "-o", "remount,ro", str(fs)], check=True)
+        mount("mount", "-o", "remount,ro", str(fs))
         r = run_saglog("replay", tmp_path / "s.rec", "--profile", EXAMPLE_PROFILE, "--out", fs / "run")
         assert r.returncode == 2
         one_line_error(r.stderr, str(fs / "run"))
