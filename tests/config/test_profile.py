@@ -1,10 +1,12 @@
 """Profiles: the shipped examples, unit handling, defaults, and every bad file a user can write."""
 
 import math
+import tomllib
 from pathlib import Path
 
 import pytest
 
+from tests.helpers.exact_construction import three_ball_reading
 from logger.analysis import geometry
 from logger.errors import UserError
 from logger.config.profile import DEFAULT_U_MM, load_profile
@@ -56,12 +58,23 @@ def test_equilateral_ring_radius_and_defaults(tmp_path):
     assert p.indicator.sense == "in-positive" and p.indicator.unit == "mm"
 
 
-def test_calibrated_profile_and_reference_inverse():
-    # Source: the inverse relation r^2 = s (2 R' - s) on a reference sphere (textbook sphere).
-    p = load_profile(PROFILES / "example-calibrated.toml")
-    r, rho = p.contact_mm("convex")
-    s = geometry.probe_sagitta_mm(50.8, r, rho, "convex")  # a 4 in precision ball (ISO 3290-1 sizes, from memory)
-    assert geometry.ring_radius_from_reference_mm(50.8, s, rho, "convex") == pytest.approx(r, rel=1e-12)
+@pytest.mark.parametrize("surface,R_ref", [("convex", 50.8), ("concave", 500.0)])
+def test_calibrated_profile_and_reference_inverse(surface, R_ref):
+    # Source: exact construction (tests/helpers/exact_construction.py) with the file's own numbers,
+    # read here with tomllib: balls of half the stated diameter on an equilateral triangle whose
+    # circumradius a / sqrt(3) (textbook) is the stated ring radius, seated on a reference sphere (a
+    # 4 in precision ball, ISO 3290-1 sizes, from memory; or a concave test plate).
+    path = PROFILES / "example-calibrated.toml"
+    raw = tomllib.loads(path.read_text(encoding="utf-8"))
+    assert raw["unit"] == "mm"
+    ring, rho = raw["spherometer"]["ring_radius"], raw["spherometer"]["ball_diameter"] / 2
+    p = load_profile(path)
+    assert p.contact_mm(surface) == pytest.approx((ring, rho), rel=1e-15)
+    assert p.spherometer.u_mm == pytest.approx(raw["uncertainty"], rel=1e-15)
+    legs = (ring * math.sqrt(3),) * 3
+    s = three_ball_reading(*legs, rho, R_ref, surface)
+    assert geometry.probe_sagitta_mm(R_ref, ring, rho, surface) == pytest.approx(s, rel=1e-10)
+    assert geometry.ring_radius_from_reference_mm(R_ref, s, rho, surface) == pytest.approx(ring, rel=1e-10)
 
 
 BAD = [
