@@ -12,6 +12,7 @@ import math
 
 import numpy as np
 from hypothesis import example, given, settings, strategies as st
+from scipy import stats
 
 from logger.analysis.seating import DetectorSettings, SeatingDetector, robust_centre
 
@@ -112,12 +113,23 @@ def test_on_change_silence_means_the_value_holds():
 
 
 def test_robust_centre_against_numpy_weighted_average():
-    # without far samples the centre is numpy's weighted average (numpy.average reference)
+    # The scaled MAD is scipy.stats.median_abs_deviation(scale="normal"), MAD / Phi^-1(0.75) =
+    # 1.4826 MAD, a consistent estimate of sigma for normal data (Iglewicz & Hoaglin 1993; reference
+    # library).  The cut of 4 scaled MADs is the detector's own choice, stated in robust_centre's
+    # docstring: for normal samples P(|Z| > 4) = 6e-5 (scipy.stats.norm), so an honest sample is
+    # almost never dropped while a knock or a transient spike is.  Two planted samples pin the cut:
+    # one 3.9 scaled MADs from the median stays, one 4.1 away goes.
     rng = np.random.default_rng(0)
-    v, w = rng.normal(0, 1, 200), rng.uniform(0.5, 1.5, 200)
+    honest = rng.normal(0, 1, 200)
+    med, smad = np.median(honest), stats.median_abs_deviation(honest, scale="normal")
+    v = np.r_[honest, med + 3.9 * smad, med - 4.1 * smad]
+    w = rng.uniform(0.5, 1.5, len(v))
+    z = np.abs(v - np.median(v)) / stats.median_abs_deviation(v, scale="normal")
+    assert 3.8 < z[-2] < 4.0 < z[-1] < 4.2 and np.sum(z > 4) == 1  # only the planted far one is beyond
+    assert 2 * stats.norm.sf(4.0) < 1e-4
     mean, spread, n = robust_centre(v, w)
-    keep = np.abs(v - np.median(v)) <= 4 * 1.4826 * np.median(np.abs(v - np.median(v)))
-    assert n == keep.sum()
+    keep = z <= 4
+    assert n == len(v) - 1 == keep.sum()
     assert math.isclose(mean, np.average(v[keep], weights=w[keep]), rel_tol=1e-12)
     assert math.isclose(spread, math.sqrt(np.cov(v[keep], aweights=w[keep], ddof=0)), rel_tol=1e-9)
 
