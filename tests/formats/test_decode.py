@@ -1,7 +1,7 @@
-"""Decoder and line splitter: a table of lines from CONTRACT.md and property tests.
+"""Decoder and line splitter: a table of lines from the formats in docs/streams.md, and property tests.
 
 The reference for splitting is a byte-by-byte state machine written here,
-independent of the regular expressions in logger/decode.py.  The reference
+independent of the regular expressions in logger/formats/decode.py.  The reference
 for values is Python's decimal arithmetic with the inch defined as exactly
 25.4 mm (international yard and pound agreement, 1959).
 """
