@@ -37,7 +37,7 @@ def _profile_three_ball(legs, ball_d, unit):
 @given(legs=triangles(), rho_frac=st.floats(0.0, 0.15), ratio=st.floats(1.05, 300.0), surface=SURFACES,
        unit=st.sampled_from(["mm", "in"]))
 def test_three_ball_exact_construction(legs, rho_frac, ratio, surface, unit):
-    # Source: exact construction (tests/exact_construction.py): balls placed on a sphere in 3-D,
+    # Source: exact construction (tests/helpers/exact_construction.py): balls placed on a sphere in 3-D,
     # reading taken where the probe axis meets the sphere.  Lengths drawn in the profile's unit.
     legs_u = [x / 25.4 for x in legs] if unit == "in" else list(legs)
     legs_mm = [to_mm(x, unit) for x in legs_u]

@@ -1,6 +1,6 @@
 """The session: phases, zero, drift, rejection and the radius, against exact constructions.
 
-Seatings here are made from the exact construction in tests/exact_construction.py
+Seatings here are made from the exact construction in tests/helpers/exact_construction.py
 (balls placed on a sphere in space), not from logger's formulas.
 """
 
