@@ -1,8 +1,8 @@
 """Fixtures shared by every test folder; helpers live in the importable package tests/helpers.
 
 Hypothesis profiles: "ci" is loaded when the CI environment variable is set (to any value, as
-hypothesis itself reads it; this replaces hypothesis's own "ci" profile with one that also fixes
-the number of examples);
+hypothesis itself reads it; registered under hypothesis's own name "ci", it is also the one
+hypothesis picks by itself on other CI markers);
 it is derandomized (the examples follow from each test alone, so a failure in CI recurs on every
 run and on a developer's machine with CI=1), uses a fixed number of examples where a test does not
 set its own, keeps no example database and prints the reproduction blob of a failure

@@ -31,8 +31,9 @@ def test_ci_profile_is_derandomized_fixed_and_prints_the_blob():
 
 
 def test_ci_variable_selects_the_profile():
-    # a fresh interpreter, as CI starts one: with CI set the default settings are the ci profile
-    code = "import tests.conftest; from hypothesis import settings; print(settings.default.derandomize)"
+    # a fresh interpreter, as CI starts one: with CI set the active settings are the ci profile's
+    code = ("import tests.conftest; from hypothesis import settings; "
+            "print(settings.default.derandomize and settings.default.print_blob)")
     bare = {"PATH": os.environ.get("PATH", ""), "PYTHONPATH": str(ROOT)}  # no other CI markers either
     for env, expected in (({**bare, "CI": "true"}, "True"), (bare, "False")):
         out = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True, text=True, cwd=ROOT,
