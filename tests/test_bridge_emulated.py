@@ -175,17 +175,21 @@ def test_the_pty_carries_the_images_lines_and_the_hosts_commands(tmp_path):
     order = [names[i % len(names)] for i in range(24)]
     schedule = [(0.1 * i, BY_NAME[n]["bits"]) for i, n in enumerate(order)]  # a streaming device, 10 frames/s
     bridge = PtyBridge(elf, program, "sign24", schedule, tmp_path)
-    got = []
+    got, cut = [], b""
     try:
-        with serial.Serial(bridge.path, 115200, timeout=5) as port:
-            while len(got) < 16:
+        # exclusive, as saglog opens ports: no other process on this machine can read from it meanwhile
+        with serial.Serial(bridge.path, 115200, timeout=5, exclusive=True) as port:
+            while len(got) < 16 and not cut:
                 line = port.readline()
-                assert line.endswith(b"\r\n"), (line, got)
+                if not line.endswith(b"\r\n"):
+                    cut = line or b"(nothing)"
+                    break
                 got.append(line.decode("ascii")[:-2])
                 if len(got) == 5:
                     port.write(b"R")  # raw-frame lines from now on
     finally:
         err = bridge.finish()
+    assert not cut, f"no complete line within 5 s: {cut!r} after {got}; {err}"
     # Expected lines from the vectors (hand-worked): reading lines for the good frames (the bad one sends
     # nothing), then, once 'R' has reached the image, the raw-frame line of every frame, good or bad.
     good = lambda n: not BY_NAME[n]["expect"].startswith("reject:")  # noqa: E731
