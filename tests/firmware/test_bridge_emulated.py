@@ -38,7 +38,7 @@ from pathlib import Path
 
 import serial
 
-from conftest import EXAMPLE_PROFILE, ROOT
+from tests.helpers.paths import EXAMPLE_PROFILE, ROOT
 
 FW = ROOT / "firmware_notes"
 BUILD = FW / "build"
