@@ -8,7 +8,7 @@
  * the expected reading line or reject reason, and the raw-frame line with the
  * vector's raw column.  It prints one line per vector,
  *     name TAB result TAB raw-frame-line
- * (result is the reading line or "reject:<reason>") so tests/test_frames.py
+ * (result is the reading line or "reject:<reason>") so tests/formats/test_frames.py
  * can check that the Python decoder agrees on every vector.  Exit status 1
  * on any mismatch.
  */
