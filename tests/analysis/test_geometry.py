@@ -58,7 +58,7 @@ def test_three_ball_exact_construction(legs, rho_frac, ratio, surface, unit):
 @pytest.mark.parametrize("ball_d", [6.35, 3.0, 12.7])
 def test_feet_sign_by_construction(ball_d):
     # Source: exact construction (balls of radius ball_d / 2 placed on a sphere in space).  A widely
-    # copied source has the concave sign reversed (see the derivation in logger/analysis/geometry.py):
+    # copied source has the concave sign reversed (README.md; the derivation in logger/analysis/geometry.py):
     # with feet the concave radius is LARGER than the point-contact formula (r^2 + s^2) / (2 s), the
     # convex one SMALLER, both by exactly the foot radius.
     legs, R = (60.0, 60.0, 60.0), 1000.0
@@ -183,7 +183,7 @@ def test_focal_length_is_half_radius_by_ray_trace(R):
 
 
 def test_dradius_dsagitta_vs_sympy():
-    # Source: sympy differentiation of R = (r^2 + s^2)/(2 s) +- rho (textbook sphere relation with feet).
+    # Source: sympy differentiation of R = (r^2 + s^2)/(2 s) +- rho (the relation in docs/measurement.md).
     s, r, rho = sympy.symbols("s r rho", positive=True)
     for sign in (+1, -1):
         dR = sympy.diff((r**2 + s**2) / (2 * s) + sign * rho, s)

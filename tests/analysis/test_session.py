@@ -235,7 +235,7 @@ def test_budget_rebuilt_independently_per_gum():
     assert math.isclose(res.summary["radius_u_mm"], u_c, rel_tol=1e-6)
     assert math.isclose(res.summary["dof_eff"], nu_eff, rel_tol=1e-6)
     assert math.isclose(res.summary["radius_U_mm"], U, rel_tol=1e-6)
-    # scatter above one count: the step is dithered away, no resolution term (common practice)
+    # scatter above one count: the step is dithered away, no resolution term (docs/measurement.md, common practice)
     assert not any("resolution" in c.name for c in res.budget.components)
 
 

@@ -105,8 +105,8 @@ def test_component_rules():
 
 
 def test_reading_components_keep_resolution_only_below_one_count():
-    # Source: dithering (common practice; Widrow and Kollar, Quantization Noise, 2008, from memory):
-    # averaging beats the step only when the scatter is at
+    # Source: the rule in docs/measurement.md (common practice; dithering, Widrow and Kollar, Quantization
+    # Noise, 2008, from memory): averaging beats the step only when the scatter is at
     # least about one count.
     names = lambda comps: [c.name for c in comps]  # noqa: E731
     assert len(reading_components(0.001)) == 2
