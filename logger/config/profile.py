@@ -37,7 +37,10 @@ DEFAULT_U_MM = {
     "ring_radius": 0.01,
 }
 
-_TOP_KEYS = {"unit", "name", "spherometer", "indicator", "uncertainty"}
+_TOP_KEYS = {"unit", "name", "spherometer", "indicator", "uncertainty", "calibration"}
+# [calibration] (kind "calibrated", written by saglog calibrate): what the measurement uses, and the record.
+_CAL_USED = {"ring_radius_per_ball_diameter", "sagitta_min", "sagitta_max"}
+_CAL_RECORD = {"ring_radius_u", "birge_ratio", "date", "saglog_version", "references"}
 _SPH_KEYS = {
     "three-ball": ({"kind", "ball_diameter"}, {"leg_spacings", "leg_readings", "readings"}),
     "ring": ({"kind", "inner_diameter", "outer_diameter"}, {"edge_radius"}),
@@ -72,6 +75,7 @@ class Spherometer:
     kind: str
     params_mm: dict = field(default_factory=dict)
     u_mm: dict = field(default_factory=dict)
+    ball_coupling: float = 0.0  # calibrated: dr/dd of the ring radius found with this ball (unit-free)
 
     def contact_mm(self, surface: str, params: dict | None = None) -> tuple[float, float]:
         p = self.params_mm if params is None else params
@@ -82,7 +86,9 @@ class Spherometer:
             if surface == "concave":  # bears on the outer edge
                 return p["outer_diameter"] / 2.0 - e, e
             return p["inner_diameter"] / 2.0 + e, e  # convex: on the inner edge
-        return p["ring_radius"], p["ball_diameter"] / 2.0  # calibrated
+        # calibrated: the ring radius was found with this ball, so it moves with the ball's diameter
+        d = p["ball_diameter"]
+        return p["ring_radius"] + self.ball_coupling * (d - self.params_mm["ball_diameter"]), d / 2.0
 
     def legs_mm(self, params: dict | None = None) -> tuple[float, float, float]:
         """Centre-to-centre leg spacings, from the spacings or from caliper readings over the balls.
@@ -114,6 +120,7 @@ class Profile:
     indicator: Indicator
     name: str = ""
     source: str = ""  # where it was read from, for messages
+    calibrated_sagitta_mm: tuple[float, float] | None = None  # the sagitta range a calibration covered
 
     def contact_mm(self, surface: str) -> tuple[float, float]:
         return self.spherometer.contact_mm(surface)
@@ -202,7 +209,8 @@ def parse_profile(data: dict, source: str = "profile") -> Profile:
         if params["ball_diameter"] / 2 >= params["ring_radius"]:
             raise UserError(f"{source}: [spherometer] ball_diameter is too large for the ring_radius")
         u.update(ring_radius=u_of["ring_radius"], ball_diameter=u_of["ball_diameter"])
-    spherometer = Spherometer(kind, params, u)
+    coupling, sag_range = _calibration(data.get("calibration"), kind, unit, source)
+    spherometer = Spherometer(kind, params, u, coupling)
     if kind == "three-ball":
         legs = spherometer.legs_mm()
         try:
@@ -224,7 +232,26 @@ def parse_profile(data: dict, source: str = "profile") -> Profile:
     name = data.get("name", "")
     if not isinstance(name, str):
         raise UserError(f"{source}: name must be a string")
-    return Profile(unit, spherometer, Indicator(resolution_mm, sense, ind_unit), name, source)
+    return Profile(unit, spherometer, Indicator(resolution_mm, sense, ind_unit), name, source, sag_range)
+
+
+def _calibration(table, kind: str, unit: str, source: str) -> tuple[float, tuple[float, float] | None]:
+    """The [calibration] record of a calibrated profile: the ball coefficient and the sagitta range it covered."""
+    if table is None:
+        return 0.0, None
+    where = f"{source}: [calibration]"
+    if kind != "calibrated":
+        raise UserError(f"{where}: belongs to a profile of kind \"calibrated\"")
+    if not isinstance(table, dict):
+        raise UserError(f"{where} must be a table")
+    _check_keys(table, _CAL_USED, _CAL_RECORD, where)
+    coupling = table["ring_radius_per_ball_diameter"]
+    if isinstance(coupling, bool) or not isinstance(coupling, (int, float)) or not math.isfinite(coupling):
+        raise UserError(f"{where} ring_radius_per_ball_diameter: must be a number, got {coupling!r}")
+    lo, hi = (_length(table[k], unit, f"{where} {k}") for k in ("sagitta_min", "sagitta_max"))
+    if lo > hi:
+        raise UserError(f"{where}: sagitta_min is larger than sagitta_max")
+    return float(coupling), (lo, hi)
 
 
 def shipped_profiles() -> list[str]:

@@ -254,25 +254,41 @@ def test_pair_radius_vs_construction(legs, rho_frac, ratio):
     R = ratio * r + rho
     total = three_ball_reading(*legs, rho, R, "concave") + three_ball_reading(*legs, rho, R, "convex")
     assume(total > 1e-7 * r)
-    assert geometry.pair_sagitta_sum_mm(R, r, rho) == pytest.approx(total, rel=1e-8)
-    assert geometry.radius_from_pair_mm(total, r, rho) == pytest.approx(R, rel=1e-7)
+    assert geometry.pair_sagitta_sum_mm(R, (r, rho), (r, rho)) == pytest.approx(total, rel=1e-8)
+    assert geometry.radius_from_pair_mm(total, (r, rho), (r, rho)) == pytest.approx(R, rel=1e-7)
     # dR/dsum against a central difference of the construction (inverse function rule)
     h = 1e-6 * R
     dsum = sum(three_ball_reading(*legs, rho, R + h, f) - three_ball_reading(*legs, rho, R - h, f)
                for f in ("concave", "convex")) / (2 * h)
-    assert geometry.dradius_dpair_sum(R, r, rho) == pytest.approx(1 / dsum, rel=1e-4)
+    assert geometry.dradius_dpair_sum(R, (r, rho), (r, rho)) == pytest.approx(1 / dsum, rel=1e-4)
 
 
 def test_pair_signal_doubles():
     # Source: DESIGN.md / textbook sphere: s_cc + s_cv is about r^2 / R, twice one piece's r^2 / (2R).
     r, rho, R = 40.0, 3.0, 4000.0
-    total = geometry.pair_sagitta_sum_mm(R, r, rho)
+    total = geometry.pair_sagitta_sum_mm(R, (r, rho), (r, rho))
     assert total == pytest.approx(r * r / R, rel=1e-3)
-    assert geometry.dradius_dpair_sum(R, r, rho) == pytest.approx(-R * R / (r * r), rel=1e-3)
+    assert geometry.dradius_dpair_sum(R, (r, rho), (r, rho)) == pytest.approx(-R * R / (r * r), rel=1e-3)
 
 
 @pytest.mark.parametrize("total", [0.0, -0.1, math.nan, 64.0, 100.0])
 def test_pair_radius_refuses_impossible_sums(total):
     # Source: the sum is positive and at most r + p(r + 2 rho) (the concave piece must carry the feet).
     with pytest.raises(UserError):
-        geometry.radius_from_pair_mm(total, 40.0, 3.0)
+        geometry.radius_from_pair_mm(total, (40.0, 3.0), (40.0, 3.0))
+
+
+@settings(max_examples=40, deadline=None)
+@given(ring=rings(), ratio=st.floats(1.5, 100.0))
+def test_pair_radius_on_a_ring_vs_construction(ring, ratio):
+    # Source: exact construction: the rounded ring lowered onto a concave and onto a convex sphere of
+    # one radius (it bears on different edges: common practice); the pair relation takes each contact.
+    inner, outer, e = ring
+    prof = parse_profile({"unit": "mm", "spherometer": {"kind": "ring", "inner_diameter": inner,
+                                                        "outer_diameter": outer, "edge_radius": e},
+                          "indicator": {"resolution": 0.001}}, "test")
+    R = ratio * outer / 2
+    total = ring_reading(inner, outer, e, R, "concave") + ring_reading(inner, outer, e, R, "convex")
+    assume(total > 1e-5 * outer)
+    got = geometry.radius_from_pair_mm(total, prof.contact_mm("concave"), prof.contact_mm("convex"))
+    assert got == pytest.approx(R, rel=1e-5)
