@@ -67,6 +67,7 @@ class Calibration:
     ring_radius_mm: float
     budget: Budget  # of the combined ring radius: one component per shared input
     ball_coefficient: float  # dr/dd of the combined ring radius (unit-free)
+    weights: tuple[float, ...]  # of each reference in the mean (they add up to 1)
     rings_mm: tuple[float, ...]  # each reference's own ring radius
     ring_u_mm: tuple[float, ...]  # and its standard uncertainty
     chi2: float | None  # (r - r_hat)' V^-1 (r - r_hat), n - 1 dof; None for one reference
@@ -127,7 +128,7 @@ def calibrate(references: list[Reference], foot_radius_mm: float, ball_u_mm: flo
     resid = rings - r_hat
     chi2 = float(resid @ np.linalg.solve(V, resid)) if len(rings) > 1 else None
     return Calibration(r_hat, Budget("effective ring radius", r_hat, comps), float(combined[keys.index(BALL)]),
-                       tuple(float(x) for x in rings), tuple(float(math.sqrt(V[i, i])) for i in range(len(rings))),
+                       tuple(float(x) for x in w), tuple(float(x) for x in rings), tuple(float(math.sqrt(V[i, i])) for i in range(len(rings))),
                        chi2, tuple(references))
 
 
