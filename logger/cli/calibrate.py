@@ -62,12 +62,12 @@ def _reference(run, radius: float, u: float, surface: str | None, profile: Profi
     """One run as a reference seating, with every check that can refuse it."""
     where, s = str(run.path), run.summary
     unit = profile.unit
+    if not s.get("seatings_surface"):
+        raise UserError(f"{where}: no accepted seatings on the reference surface")
     if s.get("surface") not in geometry.SURFACES:
         raise UserError(f"{where}: not a run on one reference surface (surface {s.get('surface')!r})")
     if surface is not None and s["surface"] != surface:
         raise UserError(f"{where}: the run reads a {s['surface']} surface, the reference is {surface}")
-    if not s.get("seatings_surface"):
-        raise UserError(f"{where}: no accepted seatings on the reference surface")
     if s.get("sagitta_mm") is None or s.get("sagitta_u_mm") is None:
         raise UserError(f"{where}: the sagitta has no uncertainty yet (seat the reference at least twice)")
     ref = Reference(where, to_mm(radius, unit), to_mm(u, unit), s["surface"], float(s["sagitta_mm"]),
