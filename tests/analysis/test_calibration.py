@@ -74,6 +74,10 @@ def test_references_combine_with_the_shared_ball_correlated():
     w = np.array(cal.weights)
     combined = w @ np.array(rs)
     assert combined.std() == pytest.approx(cal.u_mm, rel=0.03)
+    # the weights are the generalised least-squares ones: the smallest variance any mean of these two
+    # references can have, 1 / (1' V^-1 1), with V the Monte Carlo's own covariance (Aitken, from memory)
+    V = np.cov(rs)
+    assert cal.u_mm == pytest.approx(1 / math.sqrt(np.ones(2) @ np.linalg.solve(V, np.ones(2))), rel=0.03)
     corr = np.corrcoef(rs)[0, 1]
     assert corr < -0.3  # the ball pulls a concave and a convex reference opposite ways
     # an uncorrelated (diagonal) treatment would misstate u: the correlation matters here
