@@ -170,7 +170,7 @@ def test_wrong_profile_calibrated_coverage_and_a_second_surface():
     assert rms_cal < 0.75 * rms_caliper
     assert abs(np.mean(err_cal)) < 3 * np.std(err_cal) / math.sqrt(n)  # no bias left (the caliper's is ~ -7 mm)
     assert measured_covered >= 0.88 * n, f"the calibrated measurement's U covered 2400 mm in {measured_covered} of {n}"
-    print(f"coverage {covered}/{n}; sd(z) {np.std(z):.2f}; rms error calibrated {rms_cal:.2f} mm, "
+    print(f"coverage {covered}/{n}; mean(z) {np.mean(z):.2f}, sd(z) {np.std(z):.2f}; rms error calibrated {rms_cal:.2f} mm, "
           f"caliper {rms_caliper:.2f} mm; calibrated U covered {measured_covered}/{n}")
 
 
