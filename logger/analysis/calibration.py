@@ -54,7 +54,8 @@ def ring_terms(ref: Reference, foot_radius_mm: float, ball_u_mm: float) -> tuple
     """A reference's ring radius, its inputs by key, and r's sensitivity to each (dr/dd for the ball)."""
     r = geometry.ring_radius_from_reference_mm(ref.radius_mm, ref.sagitta_mm, foot_radius_mm, ref.surface)
     c = geometry.ring_radius_sensitivities(ref.radius_mm, ref.sagitta_mm, foot_radius_mm, ref.surface)
-    sag_key, cert_key = f"sagitta, {ref.run}", f"reference radius {ref.radius_mm:.9g} mm (certificate)"
+    sag_key = f"sagitta, {ref.run}"
+    cert_key = f"reference {ref.radius_mm:.9g} +- {ref.radius_u_mm:.3g} mm (certificate)"  # one per reference
     dist = "t" if math.isfinite(ref.sagitta_dof) else "normal"
     inputs = {sag_key: Input(sag_key, ref.sagitta_u_mm, ref.sagitta_dof, dist),
               cert_key: Input(cert_key, ref.radius_u_mm), BALL: Input(BALL, ball_u_mm)}
