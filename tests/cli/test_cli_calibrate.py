@@ -5,7 +5,6 @@ from __future__ import annotations
 import json
 import math
 import tomllib
-from pathlib import Path
 
 import pytest
 from click.testing import CliRunner
@@ -15,20 +14,11 @@ from logger.cli.main import main
 from logger.config.profile import load_profile
 from logger.simulator import load_scenario, simulate
 from logger.simulator.model import write_recording
+from tests.helpers.paths import user_error
 
 
 def run(*args):
     return CliRunner().invoke(main, [str(a) for a in args])
-
-
-def user_error(res, *words):
-    """Exit 2, one line on stderr naming the problem, no traceback."""
-    assert res.exit_code == 2, (res.stdout, res.stderr)
-    lines = res.stderr.strip().splitlines()
-    assert len(lines) == 1 and lines[0].startswith("saglog: error:"), res.stderr
-    assert "Traceback" not in res.stderr + res.stdout
-    for w in words:
-        assert w in lines[0], lines[0]
 
 
 def _replay(tmp, name, scenario, profile="example-three-ball", seed=None, *extra):
