@@ -116,12 +116,13 @@ def analysis_options(f):
 
 
 _ANALYSIS_KEYS = ("label", "rejection", "z_cut", "flat_first", "phase_gap", "max_spread", "settle", "band", "lift",
-                  "target_radius", "focal_length", "focal_ratio", "diameter", "pair", "abrasive")
+                  "target_radius", "focal_length", "focal_ratio", "diameter")
 
 
 def run_settings_from(profile: Profile, kw: dict) -> RunSettings:
     """Pop the shared options from `kw` and turn them into RunSettings (mm inside)."""
     o = {k: kw.pop(k) for k in _ANALYSIS_KEYS}
+    o.update(pair=kw.pop("pair", False), abrasive=kw.pop("abrasive", None))  # absent where a caller builds kw itself
     unit = profile.unit
 
     def mm(value):
