@@ -10,12 +10,12 @@ from __future__ import annotations
 
 import dataclasses
 import difflib
-import math
 import tomllib
 from dataclasses import dataclass
 from pathlib import Path
 
 from logger.analysis import geometry
+from logger.checks import is_positive
 from logger.errors import UserError
 from logger.config.profile import PROFILE_DIR, Profile, load_profile
 from logger.units import check_unit, to_mm
@@ -118,16 +118,23 @@ class Scenario:
         s.validate()
         return s
 
+    def _check_instrument(self, where: str) -> None:
+        """[instrument]: the true geometry of a three-ball spherometer, a triangle the balls fit."""
+        if self.true_legs_mm is None and self.true_ball_mm is None:
+            return
+        if self.profile.spherometer.kind != "three-ball":
+            raise UserError(f"{where}: [instrument] describes a three-ball spherometer; the profile is not one")
+        if self.true_legs_mm is not None:
+            try:
+                geometry.circumradius_mm(*self.true_legs_mm)
+            except UserError as exc:
+                raise UserError(f"{where}: [instrument] leg_spacings: {exc}") from None
+
     def validate(self) -> None:
         where = self.source or self.name
         if self.surface not in ("concave", "convex", "pair"):
             raise UserError(f"{where}: surface must be 'concave', 'convex' or 'pair', not {self.surface!r}")
-        if (self.true_legs_mm is not None or self.true_ball_mm is not None) and self.profile.spherometer.kind != "three-ball":
-            raise UserError(f"{where}: [instrument] describes a three-ball spherometer; the profile is not one")
-        if self.true_legs_mm is not None:
-            if len(self.true_legs_mm) != 3:
-                raise UserError(f"{where}: [instrument] leg_spacings must be three lengths")
-            geometry.circumradius_mm(*self.true_legs_mm)
+        self._check_instrument(where)
         for key in ("flat_before", "surface_seatings", "flat_after"):
             v = getattr(self, key)
             if isinstance(v, bool) or not isinstance(v, int) or v < 0:
@@ -137,12 +144,12 @@ class Scenario:
         for key in ("radius_mm", "seated_s", "lifted_s", "lift_mm", "settle_tau_s", "lift_tau_s", "rate_hz",
                     "step"):
             v = getattr(self, key)
-            if not (isinstance(v, (int, float)) and math.isfinite(v) and v > 0):
+            if not is_positive(v):
                 raise UserError(f"{where}: {key} must be a positive number, got {v!r}")
         for key in ("lead_in_s", "tail_s", "scatter_mm", "noise_mm", "grit_offset_mm", "rock_amplitude_mm",
                     "garbage_per_min", "overshoot"):
             v = getattr(self, key)
-            if not (isinstance(v, (int, float)) and math.isfinite(v) and v >= 0):
+            if not is_positive(v, allow_zero=True):
                 raise UserError(f"{where}: {key} must be a number >= 0, got {v!r}")
         if not 1 <= self.rate_hz <= 20000:
             raise UserError(f"{where}: rate must be between 1 and 20000 lines per second, got {self.rate_hz!r}")
@@ -226,7 +233,7 @@ def _typed(value, kind, where):
         return value
     if kind == "L3":
         if not (isinstance(value, list) and len(value) == 3
-                and all(isinstance(x, (int, float)) and not isinstance(x, bool) and x > 0 for x in value)):
+                and all(is_positive(x) for x in value)):
             raise UserError(f"{where}: must be a list of three positive lengths, got {value!r}")
         return value
     if kind is list:
@@ -256,7 +263,7 @@ def parse_scenario(data: dict, source: str, base_dir: Path) -> Scenario:
                 want = float if kind in ("L", "S") else kind  # L: length >= 0, S: signed, L3: three lengths
                 raw[name] = (_typed(tab[key], want, f"{where} {key}"), kind)
     if "profile" not in raw:
-        raise UserError(f"{source}: missing key 'profile' (a profile file, or a name in logger/profiles)")
+        raise UserError(f"{source}: missing key 'profile' (a profile file, or the name of a shipped profile)")
     file_unit = check_unit(raw.pop("file_unit", ("mm", str))[0], f"{source}: unit")
     for name, (value, kind) in raw.items():
         if kind in ("L", "S"):
