@@ -125,3 +125,16 @@ def test_a_wrong_reference_radius_is_refused(runs, tmp_path):
     user_error(run("calibrate", runs["plate"], "--reference-radius", 3000, "--out", out), "far from the profile")
     assert not out.exists()
     assert geometry.ring_radius_from_reference_mm(3000.0, 0.547, 3.175, "concave") > 1.4 * 40.4
+
+
+def test_real_subprocess_writes_and_refuses(runs, tmp_path):
+    # Source: the contract's exit statuses, through a real `python -m logger` as a user runs it.
+    from tests.helpers.paths import run_saglog
+
+    out = tmp_path / "cal.toml"
+    r = run_saglog("calibrate", runs["plate"], "--reference-radius", 1500, "--reference-u", 0.05, "--out", out, "--json")
+    assert r.returncode == 0, r.stderr
+    assert json.loads(r.stdout)["ring_radius"] == tomllib.loads(out.read_text())["spherometer"]["ring_radius"]
+    r = run_saglog("calibrate", runs["plate"], runs["ball"], "--reference-radius", 1500, "--out", tmp_path / "x.toml")
+    assert r.returncode == 2 and r.stderr.count("\n") == 1 and "Traceback" not in r.stderr
+    assert not (tmp_path / "x.toml").exists()
