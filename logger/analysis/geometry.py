@@ -83,8 +83,7 @@ def probe_sagitta_mm(radius_mm: float, ring_radius_mm: float, foot_radius_mm: fl
 
     Always positive: the magnitude of the probe's travel from the flat zero.
     """
-    _check_surface(surface)
-    ball_sphere = radius_mm - foot_radius_mm if surface == "concave" else radius_mm + foot_radius_mm
+    ball_sphere = _ball_sphere_mm(radius_mm, foot_radius_mm, surface)
     if ball_sphere <= 0:
         raise UserError(f"a concave radius of {radius_mm:g} mm is smaller than the foot radius")
     return sagitta_of_sphere_mm(ball_sphere, ring_radius_mm)
@@ -163,11 +162,81 @@ def ring_radius_from_reference_mm(
     E.g. a precision steel ball (ISO 3290-1 grades; convex) or a test plate.
     From s = R' - sqrt(R'^2 - r^2): r^2 = s (2 R' - s), with R' = R -+ rho.
     """
-    _check_surface(surface)
     s = float(sagitta_mm)
-    ball_sphere = reference_radius_mm - foot_radius_mm if surface == "concave" else reference_radius_mm + foot_radius_mm
+    ball_sphere = _ball_sphere_mm(reference_radius_mm, foot_radius_mm, surface)
     if not (s > 0) or ball_sphere <= 0 or s >= ball_sphere:
         raise UserError(
             f"sagitta {sagitta_mm!r} mm cannot come from a {surface} reference of radius {reference_radius_mm!r} mm"
         )
     return math.sqrt(s * (2.0 * ball_sphere - s))
+
+
+def _ball_sphere_mm(reference_radius_mm: float, foot_radius_mm: float, surface: str) -> float:
+    """R' = R - rho (concave) or R + rho (convex): the sphere the ball centres lie on."""
+    _check_surface(surface)
+    return reference_radius_mm - foot_radius_mm if surface == "concave" else reference_radius_mm + foot_radius_mm
+
+
+def ring_radius_sensitivities(reference_radius_mm: float, sagitta_mm: float, foot_radius_mm: float,
+                              surface: str) -> dict:
+    """dr/ds, dr/dR and dr/drho of r = sqrt(s (2 R' - s)), R' = R -+ rho (derivation in docs/measurement.md).
+
+    dr/ds = (R' - s)/r, dr/dR = s/r, dr/drho = -s/r concave, +s/r convex.
+    """
+    r = ring_radius_from_reference_mm(reference_radius_mm, sagitta_mm, foot_radius_mm, surface)
+    s = float(sagitta_mm)
+    R_ball = _ball_sphere_mm(reference_radius_mm, foot_radius_mm, surface)
+    return {"sagitta": (R_ball - s) / r, "reference_radius": s / r,
+            "foot_radius": (-s if surface == "concave" else s) / r}
+
+
+def pair_sagitta_sum_mm(radius_mm, contact_concave_mm, contact_convex_mm):
+    """s_cc + s_cv: the probe sagittas of a concave and a convex piece of one radius R.
+
+    Each contact is (ring radius, foot radius) for that surface (a ring
+    bears on its outer edge on the concave piece, on its inner edge on the
+    convex one).  The ball centres lie on spheres of radius R - rho and
+    R + rho; each sagitta is written r^2 / (R' + sqrt(R'^2 - r^2)) to avoid
+    cancellation.  Floats or numpy arrays (the Monte Carlo check feeds it samples).
+    """
+    R = np.asarray(radius_mm, dtype=float)
+    total = 0.0
+    for (ring, foot), sign in ((contact_concave_mm, -1.0), (contact_convex_mm, +1.0)):
+        r, X = np.asarray(ring, dtype=float), R + sign * np.asarray(foot, dtype=float)
+        if np.any(X < r * (1 - 1e-12)):  # (a rounding below r at the bracket's end is r itself)
+            raise UserError(f"a pair of radius {_show(radius_mm)} mm cannot carry the feet over a ring of radius "
+                            f"{_show(ring)} mm")
+        total = total + r * r / (X + np.sqrt(np.maximum((X - r) * (X + r), 0.0)))
+    return _out(total)
+
+
+def radius_from_pair_mm(sagitta_sum_mm: float, contact_concave_mm, contact_convex_mm) -> float:
+    """The one radius R of a concave and a convex piece whose sagittas add up to `sagitta_sum_mm`.
+
+    s_cc + s_cv falls monotonically from its largest value, where the
+    smallest sphere just carries the feet, towards 0 as R grows, so a
+    bracketed root finder (Brent) finds R.  Upper bracket: each sagitta is
+    below r^2 / R', so at R = rho + 2 r_max^2 / sum the total is below the target.
+    """
+    from scipy.optimize import brentq
+
+    total = float(sagitta_sum_mm)
+    (r_cc, rho_cc), (r_cv, rho_cv) = contact_concave_mm, contact_convex_mm
+    if not (math.isfinite(total) and total > 0):
+        raise UserError(f"the pieces' sagittas must add up to a positive number, got {sagitta_sum_mm!r} mm")
+    lo = max(r_cc + rho_cc, r_cv - rho_cv, rho_cv)
+    if total >= pair_sagitta_sum_mm(lo, contact_concave_mm, contact_convex_mm):
+        raise UserError(f"sagittas adding up to {total:g} mm are too deep for a ring of radius {r_cc:g} mm: "
+                        "no pair of one radius gives them")
+    hi = lo + 2.0 * max(r_cc, r_cv) ** 2 / total
+    return float(brentq(lambda R: pair_sagitta_sum_mm(R, contact_concave_mm, contact_convex_mm) - total, lo, hi,
+                        xtol=1e-13 * hi, rtol=1e-15, maxiter=200))
+
+
+def dradius_dpair_sum(radius_mm: float, contact_concave_mm, contact_convex_mm) -> float:
+    """dR/d(s_cc + s_cv) = 1 / (p'(R - rho) + p'(R + rho)), p'(X) = 1 - X / sqrt(X^2 - r^2); about -R^2 / r^2."""
+    slope = 0.0
+    for (r, rho), sign in ((contact_concave_mm, -1.0), (contact_convex_mm, +1.0)):
+        X = radius_mm + sign * rho
+        slope += 1.0 - X / math.sqrt(X * X - r * r)
+    return 1.0 / slope

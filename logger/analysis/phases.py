@@ -3,6 +3,10 @@
 The zero is the level of the opening seatings; seatings far enough from it,
 on the side most of them lie, are the surface.  A lone far seating that is
 not the newest is grit on the flat, not a surface phase.
+
+A mirror seated against its tool shows other levels (`pair_phases`): the
+flat in the middle, the concave piece on one side and the convex piece on
+the other, about as far away; or, with no flat, just the two pieces.
 """
 
 from __future__ import annotations
@@ -12,6 +16,7 @@ import numpy as np
 from logger.analysis.seating import Seating
 
 FLAT, SURFACE = "flat", "surface"
+CONCAVE, CONVEX = "concave", "convex"  # the two pieces of a mirror-and-tool run
 
 
 def default_gap_mm(step_mm: float) -> float:
@@ -86,3 +91,43 @@ def classify(seatings: list[Seating], gap_mm: float | None, flat_first: int | No
     level = float(np.median(v[far]))
     return [SURFACE if i >= n_first and abs(x - zero) > gap_mm and abs(x - level) < abs(x - zero) else FLAT
             for i, x in enumerate(v)]
+
+
+def _levels(v: np.ndarray, gap_mm: float) -> list[np.ndarray]:
+    """Groups of at least two values, split where sorted neighbours are more than `gap_mm` apart."""
+    order = np.argsort(v, kind="stable")
+    cuts = np.nonzero(np.diff(v[order]) > gap_mm)[0] + 1
+    return [g for g in np.split(order, cuts) if len(g) >= 2]
+
+
+def pair_phases(seatings: list[Seating], gap_mm: float | None, step_mm: float, sign: int, told: bool,
+                steady: list[bool] | None = None) -> list[str] | None:
+    """Flat, concave and convex seatings of a mirror-and-tool run; None when the run is not one.
+
+    Three levels whose middle one holds the first steady seating are the
+    flat with the pieces on both sides; it is a pair only when both sides
+    hold at least two seatings, neither fewer than a third of the other's,
+    and lie about equally far from the flat (within a factor 2: one radius,
+    a flat not quite flat), so grit on the flat is never taken for a piece.
+    Told that the run is a pair (`told`), two levels are the two pieces
+    with no flat.  For an in-positive indicator (sign +1) the concave piece
+    reads lower.  Every seating takes the phase of the nearest level.
+    """
+    v = np.array([s.value_mm for s in seatings])
+    ok = np.ones(len(v), bool) if steady is None else np.asarray(steady, bool)
+    idx = np.nonzero(ok)[0]
+    groups = [idx[g] for g in _levels(v[idx], default_gap_mm(step_mm) if gap_mm is None else gap_mm)]
+    if len(groups) == 3 and idx.size and idx[0] in groups[1]:
+        low, flat, high = (float(np.median(v[g])) for g in groups)
+        n_low, n_high = len(groups[0]), len(groups[2])
+        depth = sorted((flat - low, high - flat))
+        if min(n_low, n_high) * 3 < max(n_low, n_high) or depth[1] > 2 * depth[0]:
+            return None
+        names = (CONCAVE, FLAT, CONVEX) if sign > 0 else (CONVEX, FLAT, CONCAVE)
+        centres = (low, flat, high)
+    elif len(groups) == 2 and told:
+        names = (CONCAVE, CONVEX) if sign > 0 else (CONVEX, CONCAVE)
+        centres = tuple(float(np.median(v[g])) for g in groups)
+    else:
+        return None
+    return [names[int(np.argmin([abs(x - c) for c in centres]))] for x in v]

@@ -19,7 +19,9 @@ from scipy import stats
 from logger.analysis import geometry, outliers
 from logger.errors import UserError
 from logger.config.profile import Profile
-from logger.analysis.phases import FLAT, SURFACE, classify
+from logger.analysis.calibration import calibration_note
+from logger.analysis.pair import analyse_pair
+from logger.analysis.phases import FLAT, SURFACE, classify, pair_phases
 from logger.analysis.seating import Seating
 from logger.analysis.zero import Zero, fit_zero, zero_u_at
 from logger.analysis.uncertainty import Budget, Component, radius_budget, reading_components
@@ -36,6 +38,8 @@ class AnalysisSettings:
     target_radius_mm: float | None = None
     diameter_mm: float | None = None
     label: str = ""
+    pair: bool = False  # a mirror and its tool seated alternately: two levels without a flat are the two pieces
+    abrasive_mm: float = 0.0  # grain of the last abrasive: how far the pair's two radii may differ
 
 
 @dataclass
@@ -63,8 +67,11 @@ def analyse(seatings: list[Seating], profile: Profile, settings: AnalysisSetting
     result = _analyse(seatings, profile, settings)
     acc = [d for d in result.decisions if d.accepted]
     result.summary.update(
-        seatings_flat=sum(d.phase == FLAT for d in acc), seatings_surface=sum(d.phase == SURFACE for d in acc),
+        seatings_flat=sum(d.phase == FLAT for d in acc), seatings_surface=sum(d.phase != FLAT for d in acc),
         seatings_rejected=len(result.decisions) - len(acc), seatings_total=len(result.decisions))
+    if profile.calibrated_sagitta_mm is not None:  # measured with a calibrated profile: near its references?
+        result.summary["calibration_note"] = calibration_note(profile.calibrated_sagitta_mm,
+                                                              result.summary.get("sagitta_mm"))
     return result
 
 
@@ -72,6 +79,13 @@ def _analyse(seatings: list[Seating], profile: Profile, settings: AnalysisSettin
     step = profile.indicator.resolution_mm
     decisions = [Decision(s) for s in seatings]
     _mark_unsteady(decisions, settings, step)
+    pieces = pair_phases(seatings, settings.phase_gap_mm, step, profile.indicator.sign, settings.pair,
+                         [d.accepted for d in decisions])
+    if pieces:  # a mirror against its tool (logger.analysis.pair)
+        for d, ph in zip(decisions, pieces):
+            d.phase = ph
+        summary = _base_summary(profile, settings)
+        return SessionResult(decisions, summary, analyse_pair(decisions, profile, settings, summary))
     phases = classify(seatings, settings.phase_gap_mm, settings.flat_first, step, [d.accepted for d in decisions])
     for d, ph in zip(decisions, phases):
         d.phase = ph

@@ -146,11 +146,11 @@ def plan(profile_path, diameter, focal_ratio, focal_length, scatter, radius_u, a
             click.echo(f"seatings needed for {want}: {n}")
 
 
-def _toml_value(value) -> str:
+def toml_value(value) -> str:
     if isinstance(value, str):
         return json.dumps(value)  # a JSON string is a valid TOML basic string
     if isinstance(value, list):
-        return "[" + ", ".join(_toml_value(v) for v in value) + "]"
+        return "[" + ", ".join(toml_value(v) for v in value) + "]"
     return repr(float(value))
 
 
@@ -159,10 +159,10 @@ def profile_text(data: dict, comment: str) -> str:
     lines = [f"# {line}" for line in comment.splitlines()]
     for key in ("name", "unit"):
         if key in data:
-            lines.append(f"{key} = {_toml_value(data[key])}")
+            lines.append(f"{key} = {toml_value(data[key])}")
     for table in ("spherometer", "indicator", "uncertainty"):
         if table in data:
-            lines += ["", f"[{table}]"] + [f"{k} = {_toml_value(v)}" for k, v in data[table].items()]
+            lines += ["", f"[{table}]"] + [f"{k} = {toml_value(v)}" for k, v in data[table].items()]
     if "uncertainty" not in data:
         lines += ["", "# Standard uncertainties (k = 1) in this file's unit; these are the defaults."]
         lines += ["# [uncertainty]"] + [f"# {k} = {from_mm(v, data['unit']):.4g}" for k, v in DEFAULT_U_MM.items()]

@@ -23,6 +23,7 @@ COMMANDS = {
     "radius": "logger.cli.calc:radius",
     "plan": "logger.cli.calc:plan",
     "new-profile": "logger.cli.calc:new_profile",
+    "calibrate": "logger.cli.calibrate:calibrate_cmd",
     "replay": "logger.cli.replay:replay_cmd",
     "capture": "logger.cli.capture:capture_cmd",
     "report": "logger.cli.reports:report_command",

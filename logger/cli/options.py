@@ -95,6 +95,12 @@ def analysis_options(f):
         click.option("--focal-length", type=POSITIVE, default=None, help="Wanted focal length [profile unit]."),
         click.option("--focal-ratio", type=POSITIVE, default=None, help="Wanted focal ratio (needs --diameter)."),
         click.option("--diameter", type=POSITIVE, default=None, help="Mirror diameter [profile unit]."),
+        click.option("--pair", is_flag=True,
+                     help="A mirror and its tool seated alternately: two levels without a flat are the two pieces "
+                          "(with a flat, the three levels are found without this)."),
+        click.option("--abrasive", type=POSITIVE, default=None,
+                     help="Grain size of the last abrasive on a mirror-and-tool pair [profile unit]: how far the "
+                          "two radii may differ (a term in the pair's budget)."),
     ]
     for opt in reversed(opts):
         f = opt(f)
@@ -116,6 +122,7 @@ _ANALYSIS_KEYS = ("label", "rejection", "z_cut", "flat_first", "phase_gap", "max
 def run_settings_from(profile: Profile, kw: dict) -> RunSettings:
     """Pop the shared options from `kw` and turn them into RunSettings (mm inside)."""
     o = {k: kw.pop(k) for k in _ANALYSIS_KEYS}
+    o.update(pair=kw.pop("pair", False), abrasive=kw.pop("abrasive", None))  # absent where a caller builds kw itself
     unit = profile.unit
 
     def mm(value):
@@ -146,5 +153,6 @@ def run_settings_from(profile: Profile, kw: dict) -> RunSettings:
     analysis = AnalysisSettings(
         rejection=o["rejection"], z_cut=o["z_cut"], flat_first=o["flat_first"],
         phase_gap_mm=mm(o["phase_gap"]), max_spread_mm=mm(o["max_spread"]),
-        target_radius_mm=target, diameter_mm=diameter, label=o["label"])
+        target_radius_mm=target, diameter_mm=diameter, label=o["label"], pair=o["pair"],
+        abrasive_mm=mm(o["abrasive"]) or 0.0)
     return RunSettings(detector, analysis)

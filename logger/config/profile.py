@@ -38,7 +38,10 @@ DEFAULT_U_MM = {
     "ring_radius": 0.01,
 }
 
-_TOP_KEYS = {"unit", "name", "spherometer", "indicator", "uncertainty"}
+_TOP_KEYS = {"unit", "name", "spherometer", "indicator", "uncertainty", "calibration"}
+# [calibration] (kind "calibrated", written by saglog calibrate): what the measurement uses, and the record.
+_CAL_USED = {"ring_radius_per_ball_diameter", "sagitta_min", "sagitta_max"}
+_CAL_RECORD = {"ring_radius_u", "birge_ratio", "date", "saglog_version", "references"}
 _SPH_KEYS = {
     "three-ball": ({"kind", "ball_diameter"}, {"leg_spacings", "leg_readings", "readings"}),
     "ring": ({"kind", "inner_diameter", "outer_diameter"}, {"edge_radius"}),
@@ -73,6 +76,7 @@ class Spherometer:
     kind: str
     params_mm: dict = field(default_factory=dict)
     u_mm: dict = field(default_factory=dict)
+    ball_coupling: float = 0.0  # calibrated: dr/dd of the ring radius found with this ball (unit-free)
 
     def contact_mm(self, surface: str, params: dict | None = None) -> tuple[float, float]:
         p = self.params_mm if params is None else params
@@ -83,7 +87,9 @@ class Spherometer:
             if surface == "concave":  # bears on the outer edge
                 return p["outer_diameter"] / 2.0 - e, e
             return p["inner_diameter"] / 2.0 + e, e  # convex: on the inner edge
-        return p["ring_radius"], p["ball_diameter"] / 2.0  # calibrated
+        # calibrated: the ring radius was found with this ball, so it moves with the ball's diameter
+        d = p["ball_diameter"]
+        return p["ring_radius"] + self.ball_coupling * (d - self.params_mm["ball_diameter"]), d / 2.0
 
     def legs_mm(self, params: dict | None = None) -> tuple[float, float, float]:
         """Centre-to-centre leg spacings, from the spacings or from caliper readings over the balls.
@@ -115,6 +121,7 @@ class Profile:
     indicator: Indicator
     name: str = ""
     source: str = ""  # where it was read from, for messages
+    calibrated_sagitta_mm: tuple[float, float] | None = None  # the sagitta range a calibration covered
 
     def contact_mm(self, surface: str) -> tuple[float, float]:
         return self.spherometer.contact_mm(surface)
@@ -157,12 +164,13 @@ def parse_profile(data: dict, source: str = "profile") -> Profile:
     _check_keys(sph, req, opt, where)
     u_of = _uncertainties(data, unit, source)
     params, u = _KIND_PARAMS[kind](sph, unit, where, u_of)
-    spherometer = Spherometer(kind, params, u)
+    coupling, sag_range = _calibration(data.get("calibration"), kind, unit, source)
+    spherometer = Spherometer(kind, params, u, coupling)
     indicator = _indicator(data["indicator"], unit, source)
     name = data.get("name", "")
     if not isinstance(name, str):
         raise UserError(f"{source}: name must be a string")
-    return Profile(unit, spherometer, indicator, name, source)
+    return Profile(unit, spherometer, indicator, name, source, sag_range)
 
 
 def _uncertainties(data: dict, unit: str, source: str) -> dict[str, float]:
@@ -249,6 +257,25 @@ def _indicator(ind, unit: str, source: str) -> Indicator:
     return Indicator(resolution_mm, sense, ind_unit)
 
 
+def _calibration(table, kind: str, unit: str, source: str) -> tuple[float, tuple[float, float] | None]:
+    """The [calibration] record of a calibrated profile: the ball coefficient and the sagitta range it covered."""
+    if table is None:
+        return 0.0, None
+    where = f"{source}: [calibration]"
+    if kind != "calibrated":
+        raise UserError(f"{where}: belongs to a profile of kind \"calibrated\"")
+    if not isinstance(table, dict):
+        raise UserError(f"{where} must be a table")
+    _check_keys(table, _CAL_USED, _CAL_RECORD, where)
+    coupling = table["ring_radius_per_ball_diameter"]
+    if not is_number(coupling):
+        raise UserError(f"{where} ring_radius_per_ball_diameter: must be a number, got {coupling!r}")
+    lo, hi = (_length(table[k], unit, f"{where} {k}") for k in ("sagitta_min", "sagitta_max"))
+    if lo > hi:
+        raise UserError(f"{where}: sagitta_min is larger than sagitta_max")
+    return float(coupling), (lo, hi)
+
+
 def shipped_profiles() -> list[str]:
     """Names of the profiles that ship with the package (logger/config/profiles)."""
     return sorted(p.stem for p in PROFILE_DIR.glob("*.toml"))
@@ -278,3 +305,4 @@ def load_profile(path: str | Path) -> Profile:
     except tomllib.TOMLDecodeError as exc:
         raise UserError(f"{p}: TOML syntax error: {exc}") from None
     return parse_profile(data, str(p))
+

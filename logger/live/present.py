@@ -36,6 +36,13 @@ def result_lines(summary: dict) -> list[str]:
         out.append(f"radius of curvature: {length_text(summary['radius_mm'], unit, 1)}{U_txt}")
         out.append(f"focal length: {length_text(summary['focal_length_mm'], unit, 1)}"
                    + (f"  focal ratio f/{summary['focal_ratio']:.2f}" if summary.get("focal_ratio") else ""))
+    if summary.get("flat_error_mm") is not None:  # a mirror against its tool, with a flat
+        out.append(f"each piece on the flat: concave {length_text(summary.get('concave_radius_mm'), unit, 1)}, "
+                   f"convex {length_text(summary.get('convex_radius_mm'), unit, 1)}; the flat bulges by "
+                   f"{length_text(summary['flat_error_mm'], unit, 5)} +- "
+                   f"{length_text(summary['flat_error_u_mm'], unit, 5)} over the ring (standard; negative: hollow)")
+    if summary.get("calibration_note"):
+        out.append(f"calibration: {summary['calibration_note']}")
     if summary.get("target_radius_mm") is not None and summary.get("radius_to_go_mm") is not None:
         out.append(f"target radius {length_text(summary['target_radius_mm'], unit, 1)}: "
                    f"radius to go {length_text(summary['radius_to_go_mm'], unit, 1)}, "

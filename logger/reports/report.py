@@ -270,6 +270,8 @@ def _draw_sagittas(sag, s: dict, seat: _Seatings, unit: str) -> None:
     sag.plot(seat.mid_min[sm_mask], st["sagitta_mm"].to_numpy(dtype=float)[sm_mask] * k, gid="sagittas",
              label=f"accepted ({int(sm_mask.sum())})", **ps.SURFACE_SEATING)
     mean, u = _num(s, "sagitta_mm"), _num(s, "sagitta_u_mm")
+    if s.get("surface") == "pair":  # a mirror against its tool: sagitta_mm is the two pieces' sum, no mean here
+        mean = math.nan
     if math.isfinite(mean):
         sag.axhline(mean * k, gid="sagitta-mean", label="mean", **ps.MEAN_LINE)
         if math.isfinite(u):

@@ -23,14 +23,16 @@ SEATINGS_COLUMNS = (
     Column("end", "time", "when it was lifted again: the first reading that left it (ISO 8601 UTC)"),
     Column("t_start_s", "float", "`start` as seconds since the start of the stream"),
     Column("t_end_s", "float", "`end` as seconds since the start of the stream"),
-    Column("phase", "text", "`flat` (on the reference flat, for the zero) or `surface`"),
+    Column("phase", "text", "`flat` (on the reference flat, for the zero) or `surface`; in a mirror-against-tool "
+           "run `concave` or `convex` for the two pieces"),
     Column("value_mm", "float", "the seating's reading: robust time-weighted mean of its settled samples"),
     Column("spread_mm", "float", "time-weighted standard deviation of those samples (how steady it was)"),
     Column("n", "int", "number of samples in the value"),
     Column("accepted", "bool", "`true` if the seating counts towards the result"),
     Column("reason", "text", "why it was rejected, e.g. `outlier: modified z = +7.2 beyond 3.5`; empty if accepted"),
     Column("zero_mm", "float", "the fitted zero at this seating's time (drift included)"),
-    Column("sagitta_mm", "float", "surface seatings: the sagitta against `zero_mm`; empty for flats"),
+    Column("sagitta_mm", "float", "surface seatings: the sagitta against `zero_mm`; empty for flats (and for a "
+           "mirror-against-tool run without a flat)"),
     Column("score", "float", "the outlier statistic of the rejection method (e.g. modified z)"),
 )
 

@@ -100,11 +100,12 @@ class SimRun:
     def __init__(self, scenario: Scenario, seed: int):
         self.scenario = sc = scenario
         self.seed = seed
-        ring_r, foot_r = sc.profile.contact_mm(sc.surface)
-        sag = geometry.probe_sagitta_mm(sc.radius_mm, ring_r, foot_r, sc.surface)
+        pieces = ("concave", "convex") if sc.surface == "pair" else (sc.surface,)
+        sags = {f: geometry.probe_sagitta_mm(sc.radius_mm, *sc.contact_mm(f), f) for f in pieces}
+        disps = [-sags[f] if f == "concave" else sags[f] for f in pieces]  # a pair: mirror, tool, mirror, ...
+        ring_r, foot_r = sc.contact_mm(pieces[0])
         sense = sc.profile.indicator.sign
-        disp_surface = -sag if sc.surface == "concave" else sag
-        stop_disp = min(0.0, disp_surface) - sc.lift_mm
+        stop_disp = min(0.0, sc.flat_error_mm, *disps) - sc.lift_mm
         self._decimals, self._units_per_count = _format_plan(sc)
         self._step_u = from_mm(sc.step, sc.unit)
 
@@ -121,7 +122,8 @@ class SimRun:
         t = sc.lead_in_s
         omega = _omega(sc.settle_tau_s, sc.overshoot)
         for i in range(n):
-            phase = "flat" if i < sc.flat_before or i >= sc.flat_before + sc.surface_seatings else "surface"
+            k = i - sc.flat_before  # the how-many-th surface seating
+            phase = "flat" if k < 0 or k >= sc.surface_seatings else pieces[k % 2] if len(pieces) == 2 else "surface"
             number = i + 1
             kind = phase
             offset = 0.0
@@ -130,7 +132,7 @@ class SimRun:
                 kind, offset = "grit", grit_sign[i] * sc.grit_offset_mm
             elif number in sc.rock_seatings or rock_u[i] < sc.rock_probability:
                 kind, rock_a = "rock", rock_sign[i] * sc.rock_amplitude_mm
-            rel = sense * (disp_surface if phase == "surface" else 0.0) + scatter[i] + offset
+            rel = sense * (sc.flat_error_mm if phase == "flat" else disps[k % len(disps)]) + scatter[i] + offset
             t_seat, t_lift = t, t + sc.seated_s
             segs.append(_Segment(t_seat, rel, _seg_value(segs[-1], t_seat), sc.settle_tau_s, omega,
                                  rock_a, 1.0 / rock_period[i] if rock_a else 0.0))
@@ -149,22 +151,23 @@ class SimRun:
 
         counts = {
             "flat": sum(s["phase"] == "flat" for s in seatings),
-            "surface": sum(s["phase"] == "surface" for s in seatings),
+            "surface": sum(s["phase"] != "flat" for s in seatings),
             "grit": sum(s["kind"] == "grit" for s in seatings),
             "rock": sum(s["kind"] == "rock" for s in seatings),
             "expected_accepted_flat": sum(s["kind"] == "flat" for s in seatings),
             "expected_accepted_surface": sum(s["kind"] == "surface" for s in seatings),
         }
+        extra = {"sagittas_mm": sags, "flat_error_mm": sc.flat_error_mm} if len(pieces) == 2 else {}
         self.truth = {
             "scenario": sc.name, "invented": True, "seed": seed,
             "surface": sc.surface, "radius_mm": sc.radius_mm, "ring_radius_mm": ring_r, "foot_radius_mm": foot_r,
-            "sagitta_mm": sag, "sense": sc.profile.indicator.sense,
+            "sagitta_mm": sags[pieces[0]], "sense": sc.profile.indicator.sense,
             "drift_mm_per_min": sc.drift_mm_per_min, "zero_mm": sc.zero_mm,
             "stop_mm": self._zero(0.0) + stop_rel, "step_mm": sc.step, "scatter_mm": sc.scatter_mm,
             "noise_mm": sc.noise_mm, "unit": sc.unit, "mode": sc.mode, "rate_hz": sc.rate_hz,
             "duration_s": round(self.duration_s, 6), "seatings": seatings, "counts": counts,
             "garbage_lines": len(self._garbage), "half_line": sc.half_line_at_start,
-            "disconnects": [{"t_start_s": a, "t_end_s": b} for a, b in self._gaps],
+            "disconnects": [{"t_start_s": a, "t_end_s": b} for a, b in self._gaps], **extra,
         }
 
     def _draw_faults(self, seed: int) -> None:

@@ -14,6 +14,7 @@ import tomllib
 from dataclasses import dataclass
 from pathlib import Path
 
+from logger.analysis import geometry
 from logger.checks import is_positive
 from logger.errors import UserError
 from logger.config.profile import PROFILE_DIR, Profile, load_profile
@@ -36,8 +37,12 @@ class Scenario:
 
     name: str
     profile: Profile
-    surface: str = "concave"
+    surface: str = "concave"  # or "convex", or "pair": surface seatings alternate mirror (concave) and tool (convex)
     radius_mm: float = 2400.0
+    flat_error_mm: float = 0.0  # the flat's own sagitta over the ring (positive: it bulges, pushes the spindle in)
+    # the instrument's true geometry where it differs from its profile (None: as the profile says)
+    true_legs_mm: tuple[float, float, float] | None = None
+    true_ball_mm: float | None = None
     # session plan
     flat_before: int = 5
     surface_seatings: int = 8
@@ -97,6 +102,13 @@ class Scenario:
     def seatings_total(self) -> int:
         return self.flat_before + self.surface_seatings + self.flat_after
 
+    def contact_mm(self, surface: str) -> tuple[float, float]:
+        """The TRUE ring and foot radius: the profile's, unless [instrument] says otherwise (three-ball)."""
+        ring_mm, foot_mm = self.profile.contact_mm(surface)
+        if self.true_legs_mm is not None:
+            ring_mm = geometry.circumradius_mm(*self.true_legs_mm)
+        return ring_mm, foot_mm if self.true_ball_mm is None else self.true_ball_mm / 2.0
+
     def with_overrides(self, **kw) -> "Scenario":
         """A copy with some fields changed (lengths in mm), checked again."""
         unknown = set(kw) - {f.name for f in dataclasses.fields(self)}
@@ -106,10 +118,23 @@ class Scenario:
         s.validate()
         return s
 
+    def _check_instrument(self, where: str) -> None:
+        """[instrument]: the true geometry of a three-ball spherometer, a triangle the balls fit."""
+        if self.true_legs_mm is None and self.true_ball_mm is None:
+            return
+        if self.profile.spherometer.kind != "three-ball":
+            raise UserError(f"{where}: [instrument] describes a three-ball spherometer; the profile is not one")
+        if self.true_legs_mm is not None:
+            try:
+                geometry.circumradius_mm(*self.true_legs_mm)
+            except UserError as exc:
+                raise UserError(f"{where}: [instrument] leg_spacings: {exc}") from None
+
     def validate(self) -> None:
         where = self.source or self.name
-        if self.surface not in ("concave", "convex"):
-            raise UserError(f"{where}: surface must be 'concave' or 'convex', not {self.surface!r}")
+        if self.surface not in ("concave", "convex", "pair"):
+            raise UserError(f"{where}: surface must be 'concave', 'convex' or 'pair', not {self.surface!r}")
+        self._check_instrument(where)
         for key in ("flat_before", "surface_seatings", "flat_after"):
             v = getattr(self, key)
             if isinstance(v, bool) or not isinstance(v, int) or v < 0:
@@ -171,6 +196,8 @@ _LAYOUT = {
     "": {"name": ("name", str), "description": ("description", str), "profile": ("profile", str),
          "unit": ("file_unit", str), "seed": ("seed", int), "start_utc": ("start_utc", str)},
     "surface": {"kind": ("surface", str), "radius": ("radius_mm", "L")},
+    "flat": {"error": ("flat_error_mm", "S")},
+    "instrument": {"leg_spacings": ("true_legs_mm", "L3"), "ball_diameter": ("true_ball_mm", "L")},
     "plan": {"flat_before": ("flat_before", int), "surface": ("surface_seatings", int),
              "flat_after": ("flat_after", int), "seated": ("seated_s", float), "lifted": ("lifted_s", float),
              "lead_in": ("lead_in_s", float), "tail": ("tail_s", float), "lift": ("lift_mm", "L")},
@@ -204,6 +231,11 @@ def _typed(value, kind, where):
         if isinstance(value, bool) or not isinstance(value, int):
             raise UserError(f"{where}: must be a whole number, got {value!r}")
         return value
+    if kind == "L3":
+        if not (isinstance(value, list) and len(value) == 3
+                and all(is_positive(x) for x in value)):
+            raise UserError(f"{where}: must be a list of three positive lengths, got {value!r}")
+        return value
     if kind is list:
         if not isinstance(value, list) or not all(isinstance(n, int) and not isinstance(n, bool) for n in value):
             raise UserError(f"{where}: must be a list of seating numbers, got {value!r}")
@@ -228,7 +260,7 @@ def parse_scenario(data: dict, source: str, base_dir: Path) -> Scenario:
                 raise UserError(f"{where}: unknown key {key!r}" + (f" (did you mean {hint[0]!r}?)" if hint else ""))
         for key, (name, kind) in keys.items():
             if key in tab:
-                want = float if kind in ("L", "S") else kind  # L: length >= 0, S: signed length
+                want = float if kind in ("L", "S") else kind  # L: length >= 0, S: signed, L3: three lengths
                 raw[name] = (_typed(tab[key], want, f"{where} {key}"), kind)
     if "profile" not in raw:
         raise UserError(f"{source}: missing key 'profile' (a profile file, or the name of a shipped profile)")
@@ -236,6 +268,8 @@ def parse_scenario(data: dict, source: str, base_dir: Path) -> Scenario:
     for name, (value, kind) in raw.items():
         if kind in ("L", "S"):
             value = to_mm(value, file_unit)
+        if kind == "L3":
+            value = tuple(to_mm(float(v), file_unit) for v in value)
         kw[name] = value
     kw["profile"] = _find_profile(kw["profile"], base_dir, source)
     if "unit" in kw:

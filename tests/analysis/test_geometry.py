@@ -218,3 +218,90 @@ def test_convex_radius_below_foot_radius_refused_and_bad_surface():
         geometry.radius_from_sagitta_mm(39.0, 40.0, 50.0, "convex")
     with pytest.raises(UserError):
         geometry.radius_from_sagitta_mm(0.5, 40.0, 3.0, "flat")
+
+
+@settings(max_examples=150, deadline=None)
+@given(legs=triangles(), rho_frac=st.floats(0.0, 0.15), ratio=st.floats(1.2, 300.0), surface=SURFACES)
+def test_ring_radius_and_sensitivities_vs_construction(legs, rho_frac, ratio, surface):
+    # Source: exact construction (balls placed on a reference sphere in 3-D); the sensitivities
+    # against central differences of the construction itself (reading -> r needs no formula of ours:
+    # r is the constructed distance from the probe axis to a ball centre).
+    r = float(np.linalg.norm(ball_centres(*legs)[0, :2] - probe_axis(ball_centres(*legs))))
+    rho = 0.02 + rho_frac * min(legs) / 2  # away from 0: the rho difference below is central
+    R = ratio * r + (rho if surface == "concave" else 0.0)
+    s = three_ball_reading(*legs, rho, R, surface)
+    assume(s > 1e-6 * r)
+    assert geometry.ring_radius_from_reference_mm(R, s, rho, surface) == pytest.approx(r, rel=1e-7)
+    sens = geometry.ring_radius_sensitivities(R, s, rho, surface)
+    # dr/dR at fixed s and rho: how r must change to keep the same reading on a sphere of R + h.
+    h = 1e-5 * R
+    k = 1 + 1e-5  # scale all legs: r scales with them
+    ds_dR = (three_ball_reading(*legs, rho, R + h, surface) - three_ball_reading(*legs, rho, R - h, surface)) / (2 * h)
+    ds_dr = (three_ball_reading(*(x * k for x in legs), rho, R, surface)
+             - three_ball_reading(*(x / k for x in legs), rho, R, surface)) / (r * (k - 1 / k))
+    ds_drho = (three_ball_reading(*legs, rho + 0.01, R, surface) - three_ball_reading(*legs, rho - 0.01, R, surface)) / 0.02
+    # implicit function theorem on s(r, R, rho) = s_measured
+    assert sens["sagitta"] == pytest.approx(1 / ds_dr, rel=1e-3)
+    assert sens["reference_radius"] == pytest.approx(-ds_dR / ds_dr, rel=1e-3, abs=1e-9)
+    assert sens["foot_radius"] == pytest.approx(-ds_drho / ds_dr, rel=1e-3, abs=1e-9)
+
+
+def test_ring_radius_sensitivities_vs_sympy():
+    # Source: sympy differentiation of r = sqrt(s (2 (R -+ rho) - s)) (DESIGN.md relation).
+    s, R, rho = sympy.symbols("s R rho", positive=True)
+    for surface, sign in (("concave", -1), ("convex", +1)):
+        r = sympy.sqrt(s * (2 * (R + sign * rho) - s))
+        point = {s: 0.3, R: 2400.0, rho: 3.175}
+        got = geometry.ring_radius_sensitivities(2400.0, 0.3, 3.175, surface)
+        for key, sym in (("sagitta", s), ("reference_radius", R), ("foot_radius", rho)):
+            assert got[key] == pytest.approx(float(sympy.diff(r, sym).subs(point)), rel=1e-12), (surface, key)
+
+
+@settings(max_examples=150, deadline=None)
+@given(legs=triangles(), rho_frac=st.floats(0.0, 0.15), ratio=st.floats(1.2, 300.0))
+def test_pair_radius_vs_construction(legs, rho_frac, ratio):
+    # Source: exact constructions of both pieces: the same spherometer seated on a concave and on a
+    # convex sphere of one radius R; the two readings add up to what the pair relation inverts.
+    r = float(np.linalg.norm(ball_centres(*legs)[0, :2] - probe_axis(ball_centres(*legs))))
+    rho = rho_frac * min(legs) / 2
+    R = ratio * r + rho
+    total = three_ball_reading(*legs, rho, R, "concave") + three_ball_reading(*legs, rho, R, "convex")
+    assume(total > 1e-7 * r)
+    assert geometry.pair_sagitta_sum_mm(R, (r, rho), (r, rho)) == pytest.approx(total, rel=1e-8)
+    assert geometry.radius_from_pair_mm(total, (r, rho), (r, rho)) == pytest.approx(R, rel=1e-7)
+    # dR/dsum against a central difference of the construction (inverse function rule)
+    h = 1e-6 * R
+    dsum = sum(three_ball_reading(*legs, rho, R + h, f) - three_ball_reading(*legs, rho, R - h, f)
+               for f in ("concave", "convex")) / (2 * h)
+    assert geometry.dradius_dpair_sum(R, (r, rho), (r, rho)) == pytest.approx(1 / dsum, rel=1e-4)
+
+
+def test_pair_signal_doubles():
+    # Source: DESIGN.md / textbook sphere: s_cc + s_cv is about r^2 / R, twice one piece's r^2 / (2R).
+    r, rho, R = 40.0, 3.0, 4000.0
+    total = geometry.pair_sagitta_sum_mm(R, (r, rho), (r, rho))
+    assert total == pytest.approx(r * r / R, rel=1e-3)
+    assert geometry.dradius_dpair_sum(R, (r, rho), (r, rho)) == pytest.approx(-R * R / (r * r), rel=1e-3)
+
+
+@pytest.mark.parametrize("total", [0.0, -0.1, math.nan, 64.0, 100.0])
+def test_pair_radius_refuses_impossible_sums(total):
+    # Source: the sum is positive and at most r + p(r + 2 rho) (the concave piece must carry the feet).
+    with pytest.raises(UserError):
+        geometry.radius_from_pair_mm(total, (40.0, 3.0), (40.0, 3.0))
+
+
+@settings(max_examples=40, deadline=None)
+@given(ring=rings(), ratio=st.floats(1.5, 100.0))
+def test_pair_radius_on_a_ring_vs_construction(ring, ratio):
+    # Source: exact construction: the rounded ring lowered onto a concave and onto a convex sphere of
+    # one radius (it bears on different edges: common practice); the pair relation takes each contact.
+    inner, outer, e = ring
+    prof = parse_profile({"unit": "mm", "spherometer": {"kind": "ring", "inner_diameter": inner,
+                                                        "outer_diameter": outer, "edge_radius": e},
+                          "indicator": {"resolution": 0.001}}, "test")
+    R = ratio * outer / 2
+    total = ring_reading(inner, outer, e, R, "concave") + ring_reading(inner, outer, e, R, "convex")
+    assume(total > 1e-5 * outer)
+    got = geometry.radius_from_pair_mm(total, prof.contact_mm("concave"), prof.contact_mm("convex"))
+    assert got == pytest.approx(R, rel=1e-5)

@@ -17,6 +17,7 @@ from scipy import stats
 from scipy.optimize import brentq
 
 from tests.helpers.exact_construction import three_ball_reading
+from tests.helpers.paths import user_error
 from logger.cli.main import main
 from logger.config.profile import load_profile
 
@@ -33,16 +34,6 @@ def ok_json(*args):
     res = run(*args, "--json")
     assert res.exit_code == 0, res.stderr
     return json.loads(res.stdout)
-
-
-def user_error(res, *words):
-    """Exit 2, one line on stderr naming the problem, no traceback."""
-    assert res.exit_code == 2, (res.stdout, res.stderr)
-    lines = res.stderr.strip().splitlines()
-    assert len(lines) == 1 and lines[0].startswith("saglog: error:"), res.stderr
-    assert "Traceback" not in res.stderr + res.stdout
-    for w in words:
-        assert w in lines[0], lines[0]
 
 
 def three_ball_file(folder, legs, ball_d, unit, resolution):

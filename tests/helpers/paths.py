@@ -18,3 +18,13 @@ def run_saglog(*args, timeout=120, **kw) -> subprocess.CompletedProcess:
     env = dict(os.environ, PYTHONPATH=str(ROOT) + os.pathsep + os.environ.get("PYTHONPATH", ""))
     return subprocess.run([sys.executable, "-m", "logger", *map(str, args)], capture_output=True, text=True,
                           timeout=timeout, env=env, **kw)
+
+
+def user_error(res, *words):
+    """A click CliRunner result that is a user error: exit 2, one line on stderr naming the problem, no traceback."""
+    assert res.exit_code == 2, (res.stdout, res.stderr)
+    lines = res.stderr.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("saglog: error:"), res.stderr
+    assert "Traceback" not in res.stderr + res.stdout
+    for w in words:
+        assert w in lines[0], lines[0]
