@@ -1,0 +1,65 @@
+"""`StandPage`: the pipeline's listener that feeds the stand page.
+
+It runs on the capture thread, so it only keeps the newest facts and hands
+a state object to the server (`StandServer.publish`, which returns at once).
+Events go out on every state change and every seating; a run's result that
+changes without a seating (the start, a gap) goes out at the next tick; the
+reading alone at most `READING_EVERY_S` apart, so a fast stream cannot
+flood a phone.
+"""
+
+from __future__ import annotations
+
+from logger.analysis.seating import State
+from logger.live.listener import Listener, Sample
+from logger.live.stand.server import StandServer
+from logger.live.stand.state import last_seating, page_state, surface_series
+
+READING_EVERY_S = 0.25  # the reading at most four times a second
+
+
+class StandPage(Listener):
+    def __init__(self, server: StandServer):
+        self.server = server
+        self._state = State.WAITING.value
+        self._reading_mm: float | None = None
+        self._summary: dict = {}
+        self._last: dict | None = None
+        self._series = surface_series([], {})
+        self._dirty = True
+        self._sent_reading_mm: float | None = None
+        self._sent_t_s = float("-inf")
+
+    def sample(self, sample: Sample) -> None:  # the hot path: one assignment
+        if sample.value_mm is not None:
+            self._reading_mm = sample.value_mm
+
+    def state(self, state: State) -> None:
+        self._state = state.value
+        self._push(None)
+
+    def published(self, result, summary: dict) -> None:
+        self._summary = summary
+        self._series = surface_series(result.decisions, summary)
+        self._dirty = True
+
+    def seating(self, decision, summary: dict) -> None:
+        self._summary = summary
+        self._last = last_seating(decision)
+        self._push(None)
+
+    def tick(self, t_s: float) -> None:
+        if self._dirty or (self._reading_mm != self._sent_reading_mm and t_s - self._sent_t_s >= READING_EVERY_S):
+            self._push(t_s)
+
+    def end(self, summary: dict) -> None:
+        self._summary = summary
+        self._push(None)
+        self.server.stop()
+
+    def _push(self, t_s: float | None) -> None:
+        self.server.publish(page_state(self._summary, self._state, self._reading_mm, self._last, self._series))
+        self._dirty = False
+        self._sent_reading_mm = self._reading_mm
+        if t_s is not None:
+            self._sent_t_s = t_s
