@@ -29,6 +29,7 @@ class StandPage(Listener):
         self._dirty = True
         self._sent_reading_mm: float | None = None
         self._sent_t_s = float("-inf")
+        self._over = False
 
     def sample(self, sample: Sample) -> None:  # the hot path: one assignment
         if sample.value_mm is not None:
@@ -54,11 +55,13 @@ class StandPage(Listener):
 
     def end(self, summary: dict) -> None:
         self._summary = summary
+        self._over = True  # the page then says the run ended, rather than that the link is lost
         self._push(None)
         self.server.stop()
 
     def _push(self, t_s: float | None) -> None:
-        self.server.publish(page_state(self._summary, self._state, self._reading_mm, self._last, self._series))
+        self.server.publish(page_state(self._summary, self._state, self._reading_mm, self._last, self._series,
+                                       self._over))
         self._dirty = False
         self._sent_reading_mm = self._reading_mm
         if t_s is not None:

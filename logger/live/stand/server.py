@@ -82,6 +82,7 @@ class _Client:
     def __init__(self, transport):
         self.queue: asyncio.Queue[bytes] = asyncio.Queue(QUEUE_EVENTS)
         self.transport = transport
+        self.task = asyncio.current_task()  # the request handler that writes this stream
 
     def abort(self) -> None:
         if self.transport is not None:
@@ -116,10 +117,15 @@ class _Hub:
     def leave(self, client: _Client) -> None:
         self.clients.discard(client)
 
-    def close_all(self) -> None:
+    def close_all(self) -> list[asyncio.Task]:
+        """End every stream; returns their handlers, to be waited for."""
+        tasks = []
         for client in list(self.clients):
             self.leave(client)
             client.abort()
+            client.task.cancel()
+            tasks.append(client.task)
+        return tasks
 
 
 class StandServer:
@@ -137,6 +143,16 @@ class StandServer:
         page = (folder / "index.html").read_text("utf-8").replace("__KEY__", quote(key or "", safe=""))
         self._files = {path: ((folder / name).read_bytes(), kind) for path, (name, kind) in ASSETS.items()}
         self._files["/"] = (page.encode(), "text/html")
+
+    @property
+    def clients(self) -> int:
+        """Event streams open now."""
+        return len(self._hub.clients)
+
+    @property
+    def dropped(self) -> int:
+        """Event streams dropped so far for falling behind."""
+        return self._hub.dropped
 
     # -- the capture's side ------------------------------------------------
     def start(self) -> int:
@@ -176,15 +192,21 @@ class StandServer:
         runner = web.AppRunner(self._app(), access_log=None, shutdown_timeout=1.0)
         try:
             loop.run_until_complete(runner.setup())
-            loop.run_until_complete(web.SockSite(runner, sock, shutdown_timeout=1.0).start())
+            loop.run_until_complete(web.SockSite(runner, sock).start())
             self._loop = loop
         finally:
             ready.set()
         loop.run_forever()
         self._loop = None
-        self._hub.close_all()
-        loop.run_until_complete(runner.cleanup())
+        loop.run_until_complete(self._shutdown(runner))
         loop.close()
+
+    async def _shutdown(self, runner: web.AppRunner) -> None:
+        """Open event streams first (they would keep the server waiting), then the server itself."""
+        streams = self._hub.close_all()
+        if streams:
+            await asyncio.wait(streams, timeout=1.0)
+        await runner.cleanup()
 
     def _app(self) -> web.Application:
         app = web.Application(middlewares=[self._guard])
@@ -227,8 +249,8 @@ class StandServer:
                 except asyncio.TimeoutError:
                     frame = PING
                 await resp.write(frame)
-        except (ConnectionError, RuntimeError):
-            pass  # the page went away, or was dropped for falling behind
+        except (ConnectionError, RuntimeError, asyncio.CancelledError):
+            pass  # the page went away, was dropped for falling behind, or the server is stopping
         finally:
             self._hub.leave(client)
         return resp

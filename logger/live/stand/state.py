@@ -4,8 +4,9 @@ Every key of summary.json, plus what the page needs live: `state`,
 `reading_mm`, `last_seating` (the verdict of the newest seating), and
 `surface_seatings` -- each accepted surface seating's own radius with the
 running mean and a band of two standard errors of the mean, for the page's
-small plot.  All in millimetres, as the files are; the page converts to the
-profile's unit (`unit`).
+small plot -- and `run_over` (the capture has ended: no more updates).
+All in millimetres, as the files are; the page converts to the profile's
+unit (`unit`).
 """
 
 from __future__ import annotations
@@ -59,6 +60,8 @@ def surface_series(decisions, summary: dict) -> dict:
     return out
 
 
-def page_state(summary: dict, state: str, reading_mm: float | None, last: dict | None, series: dict) -> dict:
+def page_state(summary: dict, state: str, reading_mm: float | None, last: dict | None, series: dict,
+               run_over: bool = False) -> dict:
     """One state object: summary.json's keys first, then the live ones."""
-    return {**summary, "state": state, "reading_mm": reading_mm, "last_seating": last, "surface_seatings": series}
+    return {**summary, "state": state, "reading_mm": reading_mm, "last_seating": last, "surface_seatings": series,
+            "run_over": run_over}

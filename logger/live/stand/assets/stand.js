@@ -9,6 +9,7 @@ const query = key ? "?key=" + encodeURIComponent(key) : "";
 const $ = (id) => document.getElementById(id);
 let source = null;
 let lastHeard = 0;
+let runOver = false;
 
 function length(mm, unit, digits) {
   // as the terminal shows lengths: one more decimal in inches
@@ -46,6 +47,7 @@ function showResult(s, unit) {
 function show(s) {
   const unit = s.unit === "in" ? "in" : "mm";
   const main = $("stand");
+  runOver = Boolean(s.run_over);
   main.dataset.state = s.state;
   setText("state", s.state);
   setText("reading", s.reading_mm == null ? "" : length(s.reading_mm, unit, 3) + " " + unit);
@@ -94,7 +96,8 @@ function plot(series, unit) {
 }
 
 function setLink(up) {
-  $("stand").dataset.link = up ? "up" : "down";
+  // after the capture's end the page keeps the final result and says so, instead of "reconnecting"
+  $("stand").dataset.link = up ? "up" : (runOver ? "over" : "down");
 }
 
 function heard() {
