@@ -94,3 +94,22 @@ def wait_for(cond, timeout_s: float, what: str, every_s: float = 0.02):
         if time.monotonic() > deadline:
             raise AssertionError(f"timed out waiting for {what}")
         time.sleep(every_s)
+
+
+def phone(driver, width: int, height: int, scheme: str = "dark") -> None:
+    """Chromium shows a phone's viewport (CSS pixels, two device pixels each) in the given colour scheme."""
+    driver.execute_cdp_cmd("Emulation.setDeviceMetricsOverride",
+                           {"width": width, "height": height, "deviceScaleFactor": 2, "mobile": True})
+    driver.execute_cdp_cmd("Emulation.setEmulatedMedia",
+                           {"features": [{"name": "prefers-color-scheme", "value": scheme}]})
+
+
+# What a person sees on the page, read in one go.
+READ_PAGE = """
+const t = (id) => document.getElementById(id).textContent;
+return {radius: t("radius"), unit: t("radius-unit"), flat: t("n-flat"), surface: t("n-surface"),
+        rejected: t("n-rejected"), verdict: t("verdict-text"), state: t("state"),
+        link: document.getElementById("stand").dataset.link,
+        lost_shown: getComputedStyle(document.getElementById("link")).display !== "none",
+        over_shown: getComputedStyle(document.getElementById("over")).display !== "none"};
+"""

@@ -43,7 +43,11 @@ class Relay:
                 near, _ = listener.accept()
             except OSError:
                 return  # cut
-            far = socket.create_connection(self.target)
+            try:
+                far = socket.create_connection(self.target)
+            except OSError:  # the server is gone: so is this connection
+                near.close()
+                continue
             with self._lock:
                 self._socks += [near, far]
             for a, b in ((near, far), (far, near)):

@@ -80,7 +80,7 @@ class _Client:
     """One event stream: its bounded queue and its connection (to abort it when it falls behind)."""
 
     def __init__(self, transport):
-        self.queue: asyncio.Queue[bytes] = asyncio.Queue(QUEUE_EVENTS)
+        self.queue: asyncio.Queue[bytes | None] = asyncio.Queue(QUEUE_EVENTS)
         self.transport = transport
         self.task = asyncio.current_task()  # the request handler that writes this stream
 
@@ -118,12 +118,14 @@ class _Hub:
         self.clients.discard(client)
 
     def close_all(self) -> list[asyncio.Task]:
-        """End every stream; returns their handlers, to be waited for."""
+        """End every stream after what it has queued (the run's final state); returns their handlers."""
         tasks = []
         for client in list(self.clients):
             self.leave(client)
-            client.abort()
-            client.task.cancel()
+            try:
+                client.queue.put_nowait(None)  # the end of the stream, after the frames before it
+            except asyncio.QueueFull:
+                client.abort()
             tasks.append(client.task)
         return tasks
 
@@ -205,7 +207,11 @@ class StandServer:
         """Open event streams first (they would keep the server waiting), then the server itself."""
         streams = self._hub.close_all()
         if streams:
-            await asyncio.wait(streams, timeout=1.0)
+            _, late = await asyncio.wait(streams, timeout=1.0)
+            for task in late:  # a page that does not take its last frames in a second is cut off
+                task.cancel()
+            if late:
+                await asyncio.wait(late, timeout=1.0)
         await runner.cleanup()
 
     def _app(self) -> web.Application:
@@ -248,6 +254,8 @@ class StandServer:
                     frame = await asyncio.wait_for(client.queue.get(), PING_S)
                 except asyncio.TimeoutError:
                     frame = PING
+                if frame is None:
+                    break  # the server is stopping
                 await resp.write(frame)
         except (ConnectionError, RuntimeError, asyncio.CancelledError):
             pass  # the page went away, was dropped for falling behind, or the server is stopping

@@ -62,10 +62,16 @@ function show(s) {
   plot(s.surface_seatings, unit);
 }
 
+let plotted = [null, "mm"];
+
 function plot(series, unit) {
+  // drawn in the box's own pixels, so dots stay round and labels stay legible at any size
+  plotted = [series, unit];
   const svg = $("plot-svg");
   const ns = "http://www.w3.org/2000/svg";
   while (svg.firstChild) svg.removeChild(svg.firstChild);
+  const W = Math.max(svg.clientWidth, 120), H = Math.max(svg.clientHeight, 60);
+  svg.setAttribute("viewBox", `0 0 ${W} ${H}`);
   if (!series || series.radius_mm.length === 0) return;
   const scale = unit === "in" ? 1 / MM_PER_IN : 1;
   const all = [...series.radius_mm, ...series.low_mm, ...series.high_mm].filter((v) => v !== null);
@@ -73,9 +79,9 @@ function plot(series, unit) {
   if (hi - lo < 1e-9) { lo -= 1; hi += 1; }
   const pad = (hi - lo) * 0.08;
   lo -= pad; hi += pad;
-  const n = series.radius_mm.length, W = 320, H = 120, left = 46, right = 8;
+  const n = series.radius_mm.length, left = 56, right = 10;
   const x = (i) => n === 1 ? (left + W - right) / 2 : left + (i * (W - left - right)) / (n - 1);
-  const y = (mm) => H - 6 - ((mm * scale - lo) * (H - 12)) / (hi - lo);
+  const y = (mm) => H - 8 - ((mm * scale - lo) * (H - 16)) / (hi - lo);
   const el = (name, attrs) => {
     const e = document.createElementNS(ns, name);
     for (const [k, v] of Object.entries(attrs)) e.setAttribute(k, v);
@@ -89,10 +95,10 @@ function plot(series, unit) {
     el("polygon", { class: "plot-band", points: [...upper, ...lower].join(" ") });
   }
   el("polyline", { class: "plot-mean", points: series.mean_mm.map((v, i) => `${x(i)},${y(v)}`).join(" ") });
-  series.radius_mm.forEach((v, i) => el("circle", { class: "plot-point", cx: x(i), cy: y(v), r: 3.2 }));
+  series.radius_mm.forEach((v, i) => el("circle", { class: "plot-point", cx: x(i), cy: y(v), r: 4 }));
   const digits = unit === "in" ? 2 : 1;
-  el("text", { class: "plot-label", x: 2, y: 12 }).textContent = hi.toFixed(digits);
-  el("text", { class: "plot-label", x: 2, y: H - 3 }).textContent = lo.toFixed(digits);
+  el("text", { class: "plot-label", x: 4, y: 16 }).textContent = hi.toFixed(digits);
+  el("text", { class: "plot-label", x: 4, y: H - 6 }).textContent = lo.toFixed(digits);
 }
 
 function setLink(up) {
@@ -131,6 +137,7 @@ async function keepAwake() {
   }
 }
 
+window.addEventListener("resize", () => plot(...plotted));
 document.addEventListener("visibilitychange", () => {
   if (document.visibilityState === "visible") keepAwake();  // the lock is released when the page is hidden
 });
