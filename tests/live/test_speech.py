@@ -17,13 +17,10 @@ import subprocess
 from hypothesis import given, settings, strategies as st
 
 from logger.analysis.phases import FLAT, SURFACE
-from logger.analysis.seating import DetectorSettings
 from logger.analysis.session import AnalysisSettings
-from logger.formats.decode import LineSplitter
-from logger.live.pipeline import Pipeline, RunSettings
 from logger.live.speech import Espeak, Speaker, find_engine, surface_phrase
-from logger.simulator import load_scenario, simulate
 from tests.helpers import debian
+from tests.helpers.simrun import live_session
 
 NUMBER = re.compile(r"radius (\d+(?:\.\d+)?) (millimetres|inches)")
 
@@ -93,20 +90,8 @@ def test_espeak_ng_speaks_a_phrase_that_sox_hears(tmp_path):
     assert stat["Maximum amplitude"] > 0.1 and stat["RMS     amplitude"] > 0.01  # not silence
 
 
-def run_session(listeners, scenario="messy-grit-rock"):
-    """A simulated session through the live pipeline in memory (every seating analysed and told at once)."""
-    run = simulate(load_scenario(scenario))
-    profile = run.scenario.profile
-    settings = RunSettings(DetectorSettings.for_step(profile.indicator.resolution_mm),
-                           AnalysisSettings(target_radius_mm=2400.0))
-    pipeline = Pipeline(profile, settings, listeners, 0.0)
-    splitter = LineSplitter()
-    for t, data in run.lines():
-        for raw in splitter.feed(data):
-            pipeline.line(t, raw)
-        pipeline.tick(t)
-    pipeline.finish(run.duration_s)
-    return pipeline
+def run_session(listeners):
+    return live_session(listeners, "messy-grit-rock", AnalysisSettings(target_radius_mm=2400.0))
 
 
 def test_every_seating_is_logged_and_only_the_newest_waits_to_be_said(tmp_path):
