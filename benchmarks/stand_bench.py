@@ -16,8 +16,7 @@ import subprocess
 import time
 from pathlib import Path
 
-from tests.helpers import debian
-from tests.helpers.stand import EventReader, url_port
+from tests.helpers.stand import EventReader, chromium, url_port
 from tests.helpers.stand import start_capture as start_page_capture
 
 from .capture_bench import PROFILE, _wait, count_records, start_capture
@@ -107,18 +106,10 @@ def summary_latency(tmp: Path, with_clients: bool) -> list[float]:
 
 
 def page_latency(tmp: Path) -> list[float]:
-    debian.ensure({"chromium": "chromium", "chromedriver": "chromium-driver"})
-    from selenium import webdriver
-    from selenium.webdriver.chrome.service import Service
-
-    options = webdriver.ChromeOptions()
-    options.binary_location = "/usr/bin/chromium"
-    for arg in ("--headless=new", "--no-sandbox", "--disable-gpu", "--disable-dev-shm-usage", "--window-size=390,844"):
-        options.add_argument(arg)
     stream = session(SEATINGS, rate_hz=100.0, seated_s=1.6, lifted_s=0.5, seed=6)
     dev, out = PtyDevice(tmp / "tty-page"), tmp / "cap-page"
     proc, url = start(dev, out, True)
-    driver = webdriver.Chrome(service=Service("/usr/bin/chromedriver"), options=options)
+    driver = chromium()
     try:
         driver.get(url)
         _wait(lambda: driver.execute_script("return document.getElementById('state').textContent") == "lifted", 30,

@@ -113,3 +113,21 @@ return {radius: t("radius"), unit: t("radius-unit"), flat: t("n-flat"), surface:
         lost_shown: getComputedStyle(document.getElementById("link")).display !== "none",
         over_shown: getComputedStyle(document.getElementById("over")).display !== "none"};
 """
+
+
+def chromium():
+    """Debian's headless Chromium through selenium (chromium and chromium-driver installed when missing)."""
+    from tests.helpers import debian
+
+    debian.ensure({"chromium": "chromium", "chromedriver": "chromium-driver"})
+    from selenium import webdriver
+    from selenium.webdriver.chrome.service import Service
+
+    options = webdriver.ChromeOptions()
+    options.binary_location = "/usr/bin/chromium"
+    for arg in ("--headless=new", "--no-sandbox", "--disable-gpu", "--disable-dev-shm-usage",
+                "--window-size=390,844", "--no-first-run", "--disable-extensions"):
+        options.add_argument(arg)
+    driver = webdriver.Chrome(service=Service("/usr/bin/chromedriver"), options=options)
+    driver.set_page_load_timeout(30)
+    return driver
