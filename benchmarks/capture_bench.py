@@ -23,6 +23,8 @@ from pathlib import Path
 
 import psutil
 
+from logger.run.columns import RECORDING_FILE, SAMPLES_FILE, SUMMARY_FILE
+
 from .feeder import Pacer, PtyDevice, session
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -51,7 +53,7 @@ def start_capture(dev: PtyDevice, out: Path, *extra) -> subprocess.Popen:
     proc = subprocess.Popen([sys.executable, "-m", "logger", "capture", "--port", str(dev.link), "--out", str(out),
                              "--profile", str(PROFILE), "--view", "plain", "--quiet", *map(str, extra)],
                             env=ENV, cwd=ROOT, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
-    _wait(lambda: (out / "stream.rec").exists() or proc.poll() is not None, 60, "the capture to open the port")
+    _wait(lambda: (out / RECORDING_FILE).exists() or proc.poll() is not None, 60, "the capture to open the port")
     if proc.poll() is not None:
         raise RuntimeError(f"capture ended early: {proc.stderr.read()}")
     return proc
@@ -64,9 +66,9 @@ def stop(proc: subprocess.Popen) -> None:
 
 
 def count_records(out: Path) -> tuple[int, int]:
-    with open(out / "stream.rec") as f:
+    with open(out / RECORDING_FILE) as f:
         rec = sum(1 for line in f if line[:1] != "#")
-    with open(out / "samples.csv") as f:
+    with open(out / SAMPLES_FILE) as f:
         samples = sum(1 for _ in f) - 1
     return rec, samples
 
@@ -134,7 +136,7 @@ def latency(tmp: Path) -> list[float]:
     stream = session(LATENCY_SEATINGS, rate_hz=100.0, seated_s=1.6, lifted_s=0.5, seed=5)
     dev = PtyDevice(tmp / "tty-lat")
     out = tmp / "cap-lat"
-    summary = out / "summary.json"
+    summary = out / SUMMARY_FILE
 
     def seatings_total():
         try:

@@ -4,7 +4,7 @@ Usage: python -m benchmarks.fuzz_decode [-atheris_runs=200000] [corpus_dir]
 
 The input is cut into blocks at points taken from its first bytes, fed
 through the splitter and every line through the decoder; the same byte
-accounting as the hypothesis test in tests/test_faults.py must hold.
+accounting as the hypothesis test in tests/live/test_faults.py must hold.
 """
 
 from __future__ import annotations

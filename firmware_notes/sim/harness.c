@@ -3,96 +3,97 @@
  * data pins with every frame of the shared vectors, and checks what the
  * firmware sends on its UART: reading lines in streaming mode, raw-frame
  * lines after 'R', nothing until '?' after 'P', and request pulses on PD4
- * while the bcd13 variant is selected.  Expected raw lines are made with the
- * portable frame.c compiled for the host (the same formatter the firmware
- * runs), expected reading lines come from the vectors file.
+ * while the bcd13 variant is selected.
+ *
+ * Every vector is clocked with two waveforms (sim/board.h): data changing
+ * halfway through the clock's high time, and data changing on the rising
+ * edge, the edge the default image must not sample, so an image that samples
+ * on the wrong edge fails.  Expected lines come from the vectors file only
+ * (its expect and raw columns, worked by hand from the documented layouts);
+ * nothing of the firmware's own code is linked in here.
  *
  * Usage: harness bridge.elf frames.tsv [clock-half-period-us]
+ * Prints one summary line on stdout; a line per failed check on stderr.
  */
-#include "frame.h"
+#include "board.h"
 #include "vectors.h"
 
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
-#include <avr_ioport.h>
-#include <avr_uart.h>
-#include <sim_avr.h>
-#include <sim_elf.h>
+static int failures, checks;
 
-#define F_HZ 16000000u
-
-static avr_t *avr;
-static avr_irq_t *clock_pin, *data_pin, *uart_in;
-static char out[4096];
-static size_t nout;
-static int req_pulses, failures, checks;
-
-static void on_uart(struct avr_irq_t *irq, uint32_t value, void *param)
+/* The host command that selects a variant (README, "Modes"). */
+static char variant_command(const char *name)
 {
-    (void)irq, (void)param;
-    if (nout < sizeof out - 1)
-        out[nout++] = (char)value;
+    static const char *const NAMES[] = {"rel24x2", "sign24", "bcd13"};
+    for (int i = 0; i < 3; i++)
+        if (strcmp(name, NAMES[i]) == 0)
+            return (char)('1' + i);
+    return 0;
 }
 
-static void on_req(struct avr_irq_t *irq, uint32_t value, void *param)
+static void discard_output(void)
 {
-    (void)irq, (void)param;
-    if (value)
-        req_pulses++;
+    char scratch[64];
+    while (board_take(scratch, sizeof scratch))
+        ;
 }
 
-static void run_us(double us)
+/* s between quotes, with CR, LF and other control bytes shown as C escapes. */
+static void print_quoted(const char *s)
 {
-    avr_cycle_count_t end = avr->cycle + (avr_cycle_count_t)(us * (F_HZ / 1e6));
-    while (avr->cycle < end) {
-        int state = avr_run(avr);
-        if (state == cpu_Done || state == cpu_Crashed) {
-            fprintf(stderr, "harness: the simulated CPU stopped (state %d)\n", state);
-            exit(1);
-        }
+    fputc('"', stderr);
+    for (; *s; s++) {
+        if (*s == '\r')
+            fputs("\\r", stderr);
+        else if (*s == '\n')
+            fputs("\\n", stderr);
+        else if ((unsigned char)*s < 0x20 || (unsigned char)*s > 0x7e || *s == '"' || *s == '\\')
+            fprintf(stderr, "\\x%02x", (unsigned char)*s);
+        else
+            fputc(*s, stderr);
     }
-}
-
-static void send(char c)
-{
-    avr_raise_irq(uart_in, (uint8_t)c);
-    run_us(300); /* one byte at 115200 baud is 87 us */
-}
-
-/* Clock idles high at the pin; data changes while the clock is high and is
- * sampled on the falling edge (the firmware's default), then an idle gap
- * long enough for the frame to be decoded and its line sent. */
-static void drive(const char *bits, double half_us)
-{
-    for (const char *b = bits; *b; b++) {
-        avr_raise_irq(data_pin, *b == '1');
-        run_us(half_us / 2);
-        avr_raise_irq(clock_pin, 0);
-        run_us(half_us);
-        avr_raise_irq(clock_pin, 1);
-        run_us(half_us / 2);
-    }
-    avr_raise_irq(data_pin, 0);
-    run_us(10000);
+    fputc('"', stderr);
 }
 
 static void expect_out(const char *what, const char *want)
 {
+    char got[8192];
+    board_take(got, sizeof got);
     checks++;
-    out[nout] = '\0';
-    if (strcmp(out, want) != 0) {
-        fprintf(stderr, "FAIL %s: got \"%s\", expected \"%s\" (line endings CR LF)\n", what, out, want);
+    if (strcmp(got, want) != 0) {
+        fprintf(stderr, "FAIL %s: got ", what);
+        print_quoted(got);
+        fputs(", expected ", stderr);
+        print_quoted(want);
+        fputc('\n', stderr);
         failures++;
     }
-    nout = 0;
 }
 
-static void select_variant(int v)
+static void select_variant(char command)
 {
-    send((char)('1' + v));
-    nout = 0;
+    board_send(command);
+    discard_output();
+}
+
+/* One frame, then an idle gap long enough for it to be decoded and its line
+ * sent (the default gap is 3 ms; a line is about 1 ms on the wire). */
+static void drive(const char *bits, double half_us, board_wave wave)
+{
+    board_clock(bits, half_us, wave);
+    board_run_us(10000);
+}
+
+static const vector *find(const vector *vec, int n, const char *name)
+{
+    for (int i = 0; i < n; i++)
+        if (strcmp(vec[i].name, name) == 0)
+            return &vec[i];
+    fprintf(stderr, "harness: the vectors have no row %s\n", name);
+    exit(2);
 }
 
 int main(int argc, char **argv)
@@ -102,101 +103,82 @@ int main(int argc, char **argv)
         return 2;
     }
     double half_us = argc > 3 ? atof(argv[3]) : 10.0;
+    if (!(half_us > 0 && half_us < 1000)) {
+        fprintf(stderr, "harness: clock half period must be a number of microseconds below 1000\n");
+        return 2;
+    }
     static vector vec[256];
     int n = vectors_load(argv[2], vec, 256);
     if (n <= 0)
         return 2;
-
-    elf_firmware_t fw;
-    memset(&fw, 0, sizeof fw);
-    if (elf_read_firmware(argv[1], &fw) != 0) {
-        fprintf(stderr, "harness: cannot read %s\n", argv[1]);
+    for (int i = 0; i < n; i++)
+        if (!variant_command(vec[i].variant)) {
+            fprintf(stderr, "harness: vector %s: unknown variant %s\n", vec[i].name, vec[i].variant);
+            return 2;
+        }
+    if (board_open(argv[1]) != 0)
         return 2;
-    }
-    strcpy(fw.mmcu, "atmega328p");
-    fw.frequency = F_HZ;
-    avr = avr_make_mcu_by_name(fw.mmcu);
-    if (!avr) {
-        fprintf(stderr, "harness: simavr has no atmega328p core\n");
-        return 2;
-    }
-    avr_init(avr);
-    avr_load_firmware(avr, &fw);
-    avr->frequency = F_HZ;
-    avr->log = 0;
 
-    uint32_t flags = 0; /* no console echo, no real-time sleeping in polls */
-    avr_ioctl(avr, AVR_IOCTL_UART_GET_FLAGS('0'), &flags);
-    flags &= ~(uint32_t)(AVR_UART_FLAG_STDIO | AVR_UART_FLAG_POLL_SLEEP);
-    avr_ioctl(avr, AVR_IOCTL_UART_SET_FLAGS('0'), &flags);
-    avr_irq_register_notify(avr_io_getirq(avr, AVR_IOCTL_UART_GETIRQ('0'), UART_IRQ_OUTPUT), on_uart, NULL);
-    uart_in = avr_io_getirq(avr, AVR_IOCTL_UART_GETIRQ('0'), UART_IRQ_INPUT);
-    clock_pin = avr_io_getirq(avr, AVR_IOCTL_IOPORT_GETIRQ('D'), 2);
-    data_pin = avr_io_getirq(avr, AVR_IOCTL_IOPORT_GETIRQ('D'), 3);
-    avr_irq_register_notify(avr_io_getirq(avr, AVR_IOCTL_IOPORT_GETIRQ('D'), 4), on_req, NULL);
-
-    avr_raise_irq(clock_pin, 1);
-    avr_raise_irq(data_pin, 0);
-    run_us(2000); /* start-up */
-
-    /* 1. Streaming reading lines; rejected frames send nothing.  The vectors
-     * run back to back, so every frame after a short, long or glitch frame
-     * also checks idle-gap resynchronisation. */
-    int current = -1;
-    for (int i = 0; i < n; i++) {
-        int v = frame_variant_from_name(vec[i].variant);
-        if (v != current)
-            select_variant(current = v);
-        drive(vec[i].bits, half_us);
-        char want[64] = "";
-        if (strncmp(vec[i].expect, "reject:", 7) != 0)
-            snprintf(want, sizeof want, "%s\r\n", vec[i].expect);
-        expect_out(vec[i].name, want);
+    /* 1. For each waveform: streaming reading lines (rejected frames send
+     * nothing), then raw-frame lines for every frame, good or bad.  The
+     * vectors run back to back, so every frame after a short, long or glitch
+     * frame also checks idle-gap resynchronisation. */
+    static const struct {
+        board_wave wave;
+        const char *name;
+    } WAVES[] = {{WAVE_MID_HIGH, "data mid-high"}, {WAVE_ON_RISING, "data on the rising edge"}};
+    char current = 0;
+    for (int w = 0; w < 2; w++) {
+        for (int raw = 0; raw < 2; raw++) {
+            board_send(raw ? 'R' : 'T');
+            for (int i = 0; i < n; i++) {
+                char c = variant_command(vec[i].variant);
+                if (c != current)
+                    select_variant(current = c);
+                drive(vec[i].bits, half_us, WAVES[w].wave);
+                char want[64] = "";
+                if (raw)
+                    snprintf(want, sizeof want, "%s\r\n", vec[i].raw);
+                else if (strncmp(vec[i].expect, "reject:", 7) != 0)
+                    snprintf(want, sizeof want, "%s\r\n", vec[i].expect);
+                char what[128];
+                snprintf(what, sizeof what, "%s%s (%s)", raw ? "raw " : "", vec[i].name, WAVES[w].name);
+                expect_out(what, want);
+            }
+        }
     }
 
-    /* 2. Raw-frame mode forwards every frame, good or bad. */
-    send('R');
-    for (int i = 0; i < n; i++) {
-        int v = frame_variant_from_name(vec[i].variant);
-        if (v != current)
-            select_variant(current = v);
-        drive(vec[i].bits, half_us);
-        uint8_t nbits = vec[i].nbits > FRAME_MAX_BITS ? FRAME_TOO_LONG : (uint8_t)vec[i].nbits;
-        char want[64];
-        uint8_t len = frame_format_raw((frame_variant)v, vec[i].packed, nbits, want);
-        strcpy(want + len, "\r\n");
-        char what[80];
-        snprintf(what, sizeof what, "raw %s", vec[i].name);
-        expect_out(what, want);
-    }
-
-    /* 3. Polled mode: silent until the host asks. */
-    send('T');
-    select_variant(current = FRAME_SIGN24);
-    send('P');
-    drive("010010110010000000000000", half_us); /* sign24 +12.34 mm, from the vectors */
+    /* 2. Polled mode: silent until the host asks. */
+    const vector *pos = find(vec, n, "sign24_pos_mm");
+    char want[64];
+    snprintf(want, sizeof want, "%s\r\n", pos->expect);
+    board_send('T');
+    select_variant(current = variant_command("sign24"));
+    board_send('P');
+    drive(pos->bits, half_us, WAVE_ON_RISING);
     expect_out("polled: nothing before '?'", "");
-    send('?');
-    run_us(3000); /* the answer takes about 1 ms on the wire */
-    expect_out("polled: answer to '?'", "+12.34 mm\r\n");
-    send('S');
+    board_send('?');
+    board_run_us(3000); /* the answer takes about 1 ms on the wire */
+    expect_out("polled: answer to '?'", want);
+    board_send('S');
 
-    /* 4. The bcd13 variant pulses the request line (about every 100 ms). */
-    req_pulses = 0;
-    run_us(300000);
+    /* 3. The bcd13 variant pulses the request line (about every 100 ms). */
+    unsigned before = board_req_rises();
+    board_run_us(300000);
     checks++;
-    if (req_pulses != 0) {
-        fprintf(stderr, "FAIL request line pulsed %d times outside bcd13\n", req_pulses);
+    if (board_req_rises() != before) {
+        fprintf(stderr, "FAIL request line pulsed %u times outside bcd13\n", board_req_rises() - before);
         failures++;
     }
-    select_variant(current = FRAME_BCD13);
-    run_us(350000);
+    select_variant(current = variant_command("bcd13"));
+    before = board_req_rises();
+    board_run_us(350000);
     checks++;
-    if (req_pulses < 2) {
-        fprintf(stderr, "FAIL request line pulsed %d times in 350 ms of bcd13\n", req_pulses);
+    if (board_req_rises() - before < 2) {
+        fprintf(stderr, "FAIL request line pulsed %u times in 350 ms of bcd13\n", board_req_rises() - before);
         failures++;
     }
-    nout = 0;
+    discard_output();
 
     printf("simavr harness: %d checks over %d vectors (clock half period %.1f us), %d failures\n",
            checks, n, half_us, failures);

@@ -5,9 +5,10 @@
  * For every vector it feeds the bits one by one into the framer, takes the
  * frame at an idle gap, checks the packed bytes against the vector's hex,
  * decodes both the framer's output and the hex, and compares the result with
- * the expected reading line or reject reason.  It prints one line per vector,
+ * the expected reading line or reject reason, and the raw-frame line with the
+ * vector's raw column.  It prints one line per vector,
  *     name TAB result TAB raw-frame-line
- * (result is the reading line or "reject:<reason>") so tests/test_frames.py
+ * (result is the reading line or "reject:<reason>") so tests/formats/test_frames.py
  * can check that the Python decoder agrees on every vector.  Exit status 1
  * on any mismatch.
  */
@@ -74,6 +75,11 @@ static void run_vector(const vector *vec)
         fail(name, msg);
     }
     frame_format_raw((frame_variant)v, frame, got_bits, raw);
+    if (strcmp(raw, vec->raw) != 0) {
+        char msg[128];
+        snprintf(msg, sizeof msg, "raw line '%s', expected '%s'", raw, vec->raw);
+        fail(name, msg);
+    }
     printf("%s\t%s\t%s\n", name, t1, raw);
 }
 

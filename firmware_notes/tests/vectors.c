@@ -22,17 +22,17 @@ static int copy(char *dst, size_t cap, const char *src)
 
 static int parse_row(char *line, vector *v)
 {
-    char *col[6] = {0};
+    char *col[7] = {0}; /* name variant bits hex expect raw note */
     char *p = line;
-    for (int i = 0; i < 6 && p; i++) {
+    for (int i = 0; i < 7 && p; i++) {
         col[i] = p;
         p = strchr(p, '\t');
         if (p)
             *p++ = '\0';
     }
-    if (!col[4] || copy(v->name, sizeof v->name, col[0]) ||
+    if (!col[5] || copy(v->name, sizeof v->name, col[0]) ||
         copy(v->variant, sizeof v->variant, col[1]) || copy(v->bits, sizeof v->bits, col[2]) ||
-        copy(v->expect, sizeof v->expect, col[4]))
+        copy(v->expect, sizeof v->expect, col[4]) || copy(v->raw, sizeof v->raw, col[5]))
         return -1;
     v->nbits = strlen(v->bits);
     if (strspn(v->bits, "01") != v->nbits)

@@ -15,6 +15,7 @@ typedef struct {
     uint8_t packed[VECTOR_MAX_BITS / 8]; /* the hex column */
     size_t nbits;
     char expect[48]; /* reading line, or "reject:<reason>" */
+    char raw[48]; /* raw-frame line "F:<variant>:<bits>:<HEX>" (no line ending) */
 } vector;
 
 /* Loads up to `max` vectors; returns how many, or -1 (after a message on

@@ -1,6 +1,6 @@
 """Spherometer geometry: pure functions, every length in millimetres.
 
-Derivation of the feet correction (the sign matters; see DESIGN.md).
+Derivation of the feet correction (the sign matters; docs/measurement.md has it in words).
 Let the feet be balls of radius rho whose centres lie on a circle of radius r,
 and let the probe sit on the axis.  On a flat the ball centres stand rho above
 the surface, and the indicator is zeroed there.

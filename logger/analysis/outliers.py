@@ -11,6 +11,10 @@ deletes anything: the session keeps rejected seatings in its files.
   e-Handbook of Statistical Methods, section 1.3.5.17), alpha = 0.05.
 * Chauvenet's criterion: reject when n * P(|Z| >= z) < 1/2.
 For the last two the standard deviation is floored at the step likewise.
+
+`REJECTIONS` maps each method's name to its test; `METHODS` (the
+--rejection choices) are its keys, so a new method is one function and one
+entry there.
 """
 
 from __future__ import annotations
@@ -20,7 +24,8 @@ import math
 import numpy as np
 from scipy import stats
 
-METHODS = ("modified-z", "grubbs", "chauvenet", "none")
+from logger.errors import UserError
+
 MAD_TO_Z = 0.6745  # Iglewicz & Hoaglin's constant: the upper quartile of the standard normal
 
 
@@ -62,7 +67,7 @@ def grubbs(values, floor: float, alpha: float = 0.05):
 def chauvenet(values, floor: float):
     x = np.asarray(values, float)
     if len(x) < 3:
-        return [(False, 0.0, "")] * len(x)
+        return keep_all(x)
     mean, sd = float(x.mean()), max(float(x.std(ddof=1)), floor)
     z = np.abs(x - mean) / sd
     expected = len(x) * 2 * stats.norm.sf(z)
@@ -72,14 +77,26 @@ def chauvenet(values, floor: float):
     ]
 
 
+def keep_all(values):
+    """No test: every value stays."""
+    return [(False, 0.0, "")] * len(values)
+
+
+# name -> test(values, floor, cut); the order is the order of the --rejection choices.
+REJECTIONS = {
+    "modified-z": modified_z,
+    "grubbs": lambda values, floor, cut: grubbs(values, floor),
+    "chauvenet": lambda values, floor, cut: chauvenet(values, floor),
+    "none": lambda values, floor, cut: keep_all(values),
+}
+METHODS = tuple(REJECTIONS)
+
+
 def judge(values, method: str, floor: float, cut: float = 3.5):
-    """Apply the chosen method; fewer than three values are never judged."""
-    if method not in METHODS:
-        raise ValueError(method)
-    if len(values) < 3 or method == "none":
-        return [(False, 0.0, "")] * len(values)
-    if method == "modified-z":
-        return modified_z(values, floor, cut)
-    if method == "grubbs":
-        return grubbs(values, floor)
-    return chauvenet(values, floor)
+    """Apply the named method; fewer than three values are never judged, an unknown name is a UserError."""
+    test = REJECTIONS.get(method)
+    if test is None:
+        raise UserError(f"rejection method {method!r} is not known (known: {', '.join(METHODS)})")
+    if len(values) < 3:
+        return keep_all(values)
+    return test(values, floor, cut)

@@ -8,7 +8,6 @@ becomes a UserError naming the option or file.
 from __future__ import annotations
 
 import json
-import math
 from datetime import datetime, timezone
 from pathlib import Path
 

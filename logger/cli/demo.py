@@ -13,6 +13,7 @@ from logger.cli.options import terminal_watchers, view_option
 from logger.cli.stand import stand_options, stand_watchers
 from logger.live.demo import run_demo
 from logger.live.present import result_lines
+from logger.run.columns import RECORDING_FILE, REPORT_PICTURE, REPORT_TEXT
 
 
 @click.command("demo")
@@ -48,8 +49,8 @@ def next_commands(out: Path) -> list[tuple[str, str]]:
     prog = str(argv0) if argv0.name == "saglog" and not shutil.which("saglog") else "saglog"
     profile = "example-three-ball"  # by name: works wherever saglog is installed
     return [
-        (f"{prog} report {out}", "draws report.png and writes report.md in the run folder"),
-        (f"{prog} replay {out}/stream.rec --profile {profile} --out {out}-grubbs --rejection grubbs",
+        (f"{prog} report {out}", f"draws {REPORT_PICTURE} and writes {REPORT_TEXT} in the run folder"),
+        (f"{prog} replay {out}/{RECORDING_FILE} --profile {profile} --out {out}-grubbs --rejection grubbs",
          "the same recording analysed again with Grubbs' test"),
         (f"{prog} plan --profile {profile} --diameter 150 --focal-ratio 8", "what to grind for f/8"),
         (f"{prog} simulate --pty", "a virtual indicator to capture from in another terminal"),

@@ -8,7 +8,6 @@ from __future__ import annotations
 
 import contextlib
 import functools
-import math
 import sys
 
 import click
@@ -17,6 +16,7 @@ from logger.analysis import geometry
 from logger.analysis.outliers import METHODS
 from logger.analysis.seating import DetectorSettings
 from logger.analysis.session import AnalysisSettings
+from logger.checks import is_positive
 from logger.config.profile import Profile, load_profile
 from logger.errors import UserError
 from logger.live.bells import Bells
@@ -41,7 +41,7 @@ class PositiveNumber(click.ParamType):
                 number = float(value)
             except (TypeError, ValueError):
                 self.fail(f"{value!r} is not a number", param, ctx)
-        if not math.isfinite(number) or number < 0 or (number == 0 and not self.allow_zero):
+        if not is_positive(number, self.allow_zero):
             self.fail(f"must be a {'non-negative' if self.allow_zero else 'positive'} number, got {value}", param, ctx)
         return number
 

@@ -14,6 +14,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from logger.analysis import geometry
+from logger.checks import is_number, is_positive
 from logger.errors import UserError
 from logger.units import check_unit, to_mm
 
@@ -132,9 +133,9 @@ def _check_keys(table: dict, required: set, optional: set, where: str) -> None:
 
 
 def _length(value, unit: str, where: str, allow_zero: bool = False) -> float:
-    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+    if not is_number(value):
         raise UserError(f"{where}: must be a number, got {value!r}")
-    if value < 0 or (value == 0 and not allow_zero):
+    if not is_positive(value, allow_zero):
         raise UserError(f"{where}: must be {'zero or ' if allow_zero else ''}positive, got {value!r}")
     return to_mm(float(value), unit)
 
@@ -152,67 +153,91 @@ def parse_profile(data: dict, source: str = "profile") -> Profile:
     if kind not in KINDS:
         raise UserError(f"{source}: [spherometer] kind must be one of {', '.join(KINDS)}, not {kind!r}")
     req, opt = _SPH_KEYS[kind]
-    _check_keys(sph, req, opt, f"{source}: [spherometer]")
+    where = f"{source}: [spherometer]"
+    _check_keys(sph, req, opt, where)
+    u_of = _uncertainties(data, unit, source)
+    params, u = _KIND_PARAMS[kind](sph, unit, where, u_of)
+    spherometer = Spherometer(kind, params, u)
+    indicator = _indicator(data["indicator"], unit, source)
+    name = data.get("name", "")
+    if not isinstance(name, str):
+        raise UserError(f"{source}: name must be a string")
+    return Profile(unit, spherometer, indicator, name, source)
+
+
+def _uncertainties(data: dict, unit: str, source: str) -> dict[str, float]:
+    """The [uncertainty] table (mm), with the defaults for what it does not state."""
     ut = data.get("uncertainty", {})
     if not isinstance(ut, dict):
         raise UserError(f"{source}: [uncertainty] must be a table")
     _check_keys(ut, set(), _U_KEYS, f"{source}: [uncertainty]")
-    u_of = {k: (_length(ut[k], unit, f"{source}: [uncertainty] {k}", allow_zero=True) if k in ut else DEFAULT_U_MM[k])
+    return {k: (_length(ut[k], unit, f"{source}: [uncertainty] {k}", allow_zero=True) if k in ut else DEFAULT_U_MM[k])
             for k in _U_KEYS}
 
-    def L(key, allow_zero=False):
-        return _length(sph[key], unit, f"{source}: [spherometer] {key}", allow_zero)
 
+def _three_ball(sph: dict, unit: str, where: str, u_of: dict) -> tuple[dict, dict]:
+    """Leg spacings (centre to centre, or caliper readings over the balls) and the ball diameter."""
+    if ("leg_spacings" in sph) == ("leg_readings" in sph):
+        raise UserError(f"{where} give either leg_spacings (centre to centre) or "
+                        "leg_readings with readings = \"outside\" or \"inside\"")
+    if "leg_readings" in sph:
+        how = sph.get("readings")
+        if how not in ("outside", "inside"):
+            raise UserError(f"{where} readings must be \"outside\" or \"inside\", not {how!r}")
+        key, names = "leg_readings", [f"{how}_{x}" for x in "abc"]
+    else:
+        if "readings" in sph:
+            raise UserError(f"{where} readings goes with leg_readings, not leg_spacings")
+        key, names = "leg_spacings", list("abc")
+    legs = sph[key]
+    if not isinstance(legs, list) or len(legs) != 3:
+        raise UserError(f"{where} {key} must be a list of three lengths")
     params: dict[str, float] = {}
     u: dict[str, float] = {}
-    if kind == "three-ball":
-        if ("leg_spacings" in sph) == ("leg_readings" in sph):
-            raise UserError(f"{source}: [spherometer] give either leg_spacings (centre to centre) or "
-                            "leg_readings with readings = \"outside\" or \"inside\"")
-        if "leg_readings" in sph:
-            how = sph.get("readings")
-            if how not in ("outside", "inside"):
-                raise UserError(f"{source}: [spherometer] readings must be \"outside\" or \"inside\", not {how!r}")
-            key, names = "leg_readings", [f"{how}_{x}" for x in "abc"]
-        else:
-            if "readings" in sph:
-                raise UserError(f"{source}: [spherometer] readings goes with leg_readings, not leg_spacings")
-            key, names = "leg_spacings", list("abc")
-        legs = sph[key]
-        if not isinstance(legs, list) or len(legs) != 3:
-            raise UserError(f"{source}: [spherometer] {key} must be a list of three lengths")
-        for name, v in zip(names, legs):
-            params[name] = _length(v, unit, f"{source}: [spherometer] {key}", False)
-            u[name] = u_of["leg_spacing"]
-        params["ball_diameter"] = L("ball_diameter", allow_zero=True)
-        u["ball_diameter"] = u_of["ball_diameter"]
-    elif kind == "ring":
-        params["inner_diameter"] = L("inner_diameter")
-        params["outer_diameter"] = L("outer_diameter")
-        params["edge_radius"] = L("edge_radius", allow_zero=True) if "edge_radius" in sph else 0.0
-        if params["inner_diameter"] >= params["outer_diameter"]:
-            raise UserError(f"{source}: [spherometer] inner_diameter must be smaller than outer_diameter")
-        if params["inner_diameter"] / 2 + params["edge_radius"] > params["outer_diameter"] / 2 - params["edge_radius"]:
-            raise UserError(f"{source}: [spherometer] edge_radius is too large for the ring's wall")
-        u.update(inner_diameter=u_of["ring_diameter"], outer_diameter=u_of["ring_diameter"],
-                 edge_radius=u_of["edge_radius"])
-    else:
-        params["ring_radius"] = L("ring_radius")
-        params["ball_diameter"] = L("ball_diameter", allow_zero=True) if "ball_diameter" in sph else 0.0
-        if params["ball_diameter"] / 2 >= params["ring_radius"]:
-            raise UserError(f"{source}: [spherometer] ball_diameter is too large for the ring_radius")
-        u.update(ring_radius=u_of["ring_radius"], ball_diameter=u_of["ball_diameter"])
-    spherometer = Spherometer(kind, params, u)
-    if kind == "three-ball":
-        legs = spherometer.legs_mm()
-        try:
-            r = geometry.circumradius_mm(*legs)
-        except UserError as exc:  # name the file and key, not just the numbers
-            raise UserError(f"{source}: [spherometer] {key}: {exc}") from None
-        if params["ball_diameter"] / 2 >= r or params["ball_diameter"] > min(legs):
-            raise UserError(f"{source}: [spherometer] ball_diameter is too large for the leg spacings (the balls would overlap)")
+    for name, v in zip(names, legs):
+        params[name] = _length(v, unit, f"{where} {key}", False)
+        u[name] = u_of["leg_spacing"]
+    params["ball_diameter"] = _length(sph["ball_diameter"], unit, f"{where} ball_diameter", allow_zero=True)
+    u["ball_diameter"] = u_of["ball_diameter"]
+    legs_mm = Spherometer("three-ball", params, u).legs_mm()
+    try:
+        r = geometry.circumradius_mm(*legs_mm)
+    except UserError as exc:  # name the file and key, not just the numbers
+        raise UserError(f"{where} {key}: {exc}") from None
+    if params["ball_diameter"] / 2 >= r or params["ball_diameter"] > min(legs_mm):
+        raise UserError(f"{where} ball_diameter is too large for the leg spacings (the balls would overlap)")
+    return params, u
 
-    ind = data["indicator"]
+
+def _ring(sph: dict, unit: str, where: str, u_of: dict) -> tuple[dict, dict]:
+    """A ring spherometer: inner and outer diameter and the edge radius."""
+    params = {"inner_diameter": _length(sph["inner_diameter"], unit, f"{where} inner_diameter"),
+              "outer_diameter": _length(sph["outer_diameter"], unit, f"{where} outer_diameter")}
+    params["edge_radius"] = (_length(sph["edge_radius"], unit, f"{where} edge_radius", allow_zero=True)
+                             if "edge_radius" in sph else 0.0)
+    if params["inner_diameter"] >= params["outer_diameter"]:
+        raise UserError(f"{where} inner_diameter must be smaller than outer_diameter")
+    if params["inner_diameter"] / 2 + params["edge_radius"] > params["outer_diameter"] / 2 - params["edge_radius"]:
+        raise UserError(f"{where} edge_radius is too large for the ring's wall")
+    return params, {"inner_diameter": u_of["ring_diameter"], "outer_diameter": u_of["ring_diameter"],
+                    "edge_radius": u_of["edge_radius"]}
+
+
+def _calibrated(sph: dict, unit: str, where: str, u_of: dict) -> tuple[dict, dict]:
+    """A calibrated contact circle: its radius and the ball diameter."""
+    params = {"ring_radius": _length(sph["ring_radius"], unit, f"{where} ring_radius")}
+    params["ball_diameter"] = (_length(sph["ball_diameter"], unit, f"{where} ball_diameter", allow_zero=True)
+                               if "ball_diameter" in sph else 0.0)
+    if params["ball_diameter"] / 2 >= params["ring_radius"]:
+        raise UserError(f"{where} ball_diameter is too large for the ring_radius")
+    return params, {"ring_radius": u_of["ring_radius"], "ball_diameter": u_of["ball_diameter"]}
+
+
+# kind -> reader of its [spherometer] table: (params_mm, u_mm)
+_KIND_PARAMS = {"three-ball": _three_ball, "ring": _ring, "calibrated": _calibrated}
+
+
+def _indicator(ind, unit: str, source: str) -> Indicator:
     if not isinstance(ind, dict):
         raise UserError(f"{source}: [indicator] must be a table")
     _check_keys(ind, *_IND_KEYS, f"{source}: [indicator]")
@@ -221,10 +246,7 @@ def parse_profile(data: dict, source: str = "profile") -> Profile:
     sense = ind.get("sense", "in-positive")
     if sense not in SENSES:
         raise UserError(f"{source}: [indicator] sense must be 'in-positive' or 'out-positive', not {sense!r}")
-    name = data.get("name", "")
-    if not isinstance(name, str):
-        raise UserError(f"{source}: name must be a string")
-    return Profile(unit, spherometer, Indicator(resolution_mm, sense, ind_unit), name, source)
+    return Indicator(resolution_mm, sense, ind_unit)
 
 
 def shipped_profiles() -> list[str]:

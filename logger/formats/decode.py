@@ -3,8 +3,9 @@
 `LineSplitter` cuts a stream of byte blocks into lines (LF, CR or CRLF
 endings, split across blocks in any way) with a hard bound on line length,
 so a device spewing noise with no newline cannot grow memory.  `Decoder`
-turns one line into a `Reading`.  Neither ever raises on bad bytes: a bad
-line is a Reading whose value is None and whose `bad` says why.
+turns one line into a `Reading`, trying the `LINE_FORMATS` in their declared
+order.  Neither ever raises on bad bytes: a bad line is a Reading whose
+value is None and whose `bad` says why.
 """
 
 from __future__ import annotations
@@ -169,24 +170,48 @@ class Decoder:
         return Reading(t_s, t_wall, raw, value_mm, unit, bad)
 
     def _parse(self, raw: bytes) -> tuple[float | None, str | None, str]:
-        m = _READING.match(raw) if len(raw) < self.max_line else None
-        if m is None:
-            frame = decode_frame_line(raw) if raw[:2] == b"F:" else None
-            if frame is not None:  # the bridge's raw-frame mode (logger.formats.frames)
-                value, unit_name = frame
-                return (value * MM_PER_INCH if unit_name == "in" else value), unit_name, ""
-            return None, None, _why_bad(raw, self.max_line)
-        sign, digits, unit = m.groups()
-        value = float(digits.replace(b",", b"."))
-        if sign == b"-":
-            value = -value
-        if unit is None:
-            unit_name = self.default_unit
-        else:
-            unit_name = "mm" if unit[:1] in b"mM" else "in"
-        if unit_name == "in":
-            value *= MM_PER_INCH
-        return value, unit_name, ""
+        if len(raw) < self.max_line:  # a line as long as the bound may have been cut: never a reading
+            for _name, read in LINE_FORMATS:
+                hit = read(raw, self.default_unit)
+                if hit is not None:
+                    return hit[0], hit[1], ""
+        return None, None, _why_bad(raw, self.max_line)
+
+
+def read_indicator_line(raw: bytes, default_unit: str) -> tuple[float, str] | None:
+    """An indicator's own text line (docs/streams.md): (value_mm, unit it was read in), None for anything else."""
+    m = _READING.match(raw)
+    if m is None:
+        return None
+    sign, digits, unit = m.groups()
+    value = float(digits.replace(b",", b"."))
+    if sign == b"-":
+        value = -value
+    if unit is None:
+        unit_name = default_unit
+    else:
+        unit_name = "mm" if unit[:1] in b"mM" else "in"
+    if unit_name == "in":
+        value *= MM_PER_INCH
+    return value, unit_name
+
+
+def read_frame_line(raw: bytes, default_unit: str) -> tuple[float, str] | None:
+    """The bridge's raw-frame line `F:<variant>:<nbits>:<HEX>` (logger.formats.frames); it carries its own unit."""
+    frame = decode_frame_line(raw) if raw[:2] == b"F:" else None
+    if frame is None:
+        return None
+    value, unit_name = frame
+    return (value * MM_PER_INCH if unit_name == "in" else value), unit_name
+
+
+# The line formats, tried in this order; the first that reads a line wins.  Each is
+# (name, read) with read(raw line, default unit) -> (value_mm, unit) or None, so a
+# new format is one function and one entry here (and rows in tests/formats/).
+LINE_FORMATS = (
+    ("indicator", read_indicator_line),
+    ("bridge-frame", read_frame_line),
+)
 
 
 def _why_bad(raw: bytes, max_line: int) -> str:

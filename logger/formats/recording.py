@@ -1,6 +1,6 @@
 """Recordings (*.rec): every received line with its time, so any capture can be replayed.
 
-Format (CONTRACT.md): UTF-8 text, one record per received line,
+Format (docs/streams.md, "Recording format"): UTF-8 text, one record per received line,
 ``seconds-since-start TAB escaped-bytes``; every byte outside 0x20..0x7E and
 the backslash itself is written ``\\xHH`` in lower-case hex, so a CR shows
 as ``\\x0d``.  Lines starting with ``#`` are comments; the header comments
@@ -22,6 +22,7 @@ from collections.abc import Callable, Iterator
 from pathlib import Path
 
 from logger import __version__
+from logger.checks import is_positive
 from logger.formats.decode import LineSplitter
 from logger.errors import UserError, cannot_write
 from logger.timestamps import iso_utc, parse_iso_utc
@@ -262,7 +263,7 @@ def _records(p: Path, f, first: bytes | None, lineno: int, on_comment) -> Iterat
 
 def read_plain(path, rate_hz: float) -> Iterator[tuple[float, bytes, str]]:
     """A raw capture without timestamps: (t_s, raw, escaped text), the i-th line at t = i / rate."""
-    if not (isinstance(rate_hz, (int, float)) and math.isfinite(rate_hz) and rate_hz > 0):
+    if not is_positive(rate_hz):
         raise UserError(f"--rate must be a positive number of lines per second, got {rate_hz!r}")
     p, f = _open(path, "capture")
     return _plain(f, rate_hz)

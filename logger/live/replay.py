@@ -41,8 +41,6 @@ def replay_file(path: str | Path, profile: Profile, settings: RunSettings, out_d
     elif rate_hz is None:
         raise UserError(f"{path}: not a saglog recording; for a plain capture give --rate HZ")
     else:
-        if rate_hz <= 0:
-            raise UserError(f"--rate: must be positive, got {rate_hz:g}")
         records, start_wall = read_plain(path, rate_hz), 0.0
         source = {"plain_capture": str(path), "rate_hz": rate_hz}
     settings.source = source

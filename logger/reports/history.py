@@ -22,16 +22,16 @@ import re
 from dataclasses import dataclass
 from pathlib import Path
 
-import click
 import numpy as np
 import pandas as pd
 from scipy import stats
 
+from logger.checks import is_positive
 from logger.reports import plotstyle as ps
 from logger.errors import UserError
 from logger.run.writer import formula_safe
 from logger.run.load import load_runs, runs_table
-from logger.units import UNITS, from_mm, to_mm
+from logger.units import from_mm, to_mm
 
 MIN_RUNS_FOR_TREND = 3
 TREND_CONFIDENCE = 0.95  # two-sided, for the slope's t test
@@ -166,7 +166,7 @@ def write_history(run_dirs, out_png, target_radius: float | None = None, toleran
     runs = load_runs(run_dirs)
     unit = unit or runs[-1].unit
     for name, v in (("--target-radius", target_radius), ("--tolerance", tolerance)):
-        if v is not None and not (math.isfinite(v) and v > 0):
+        if v is not None and not is_positive(v):
             raise UserError(f"{name} {v}: must be a positive length in {unit}")
     table = history_table(runs, None if target_radius is None else to_mm(target_radius, unit))
     target_mm = float(table["target_radius_mm"].iloc[0])

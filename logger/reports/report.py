@@ -20,15 +20,15 @@ from __future__ import annotations
 import math
 from pathlib import Path
 
-import click
 import numpy as np
 import pandas as pd
 
 from logger.reports import plotstyle as ps
+from logger.checks import is_number
 from logger.config.profile import Spherometer
 from logger.run.columns import REPORT_PICTURE, REPORT_TEXT
 from logger.run.load import Run, load_run
-from logger.units import UNITS, from_mm
+from logger.units import from_mm
 
 MAX_TRACE_POINTS = 20_000  # drawn points of the reading trace, at most (plus gap breaks)
 MAX_HATCHED_WINDOWS = 400  # beyond this, seated windows are drawn without hatching
@@ -38,22 +38,18 @@ MAX_REASON_NOTES = 25  # rejected seatings annotated in the figure; all are in r
 # --- formatting ------------------------------------------------------------
 
 
-def _finite(v) -> bool:
-    return isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)
-
-
 def fmt_len(value_mm, unit: str, digits: int = 6) -> str:
     """A length in the display unit with `digits` significant figures, or 'n/a'."""
-    if not _finite(value_mm):
+    if not is_number(value_mm):
         return "n/a"
     return f"{from_mm(value_mm, unit):.{digits}g} {unit}"
 
 
 def fmt_pm(value_mm, u_mm, unit: str) -> str:
     """value ± u in the display unit, rounded to two significant figures of u."""
-    if not _finite(value_mm):
+    if not is_number(value_mm):
         return "not estimable"
-    if not _finite(u_mm) or u_mm <= 0:
+    if not is_number(u_mm) or u_mm <= 0:
         return fmt_len(value_mm, unit)
     v, u = from_mm(value_mm, unit), from_mm(u_mm, unit)
     d = max(0, 1 - math.floor(math.log10(u)))
@@ -62,7 +58,7 @@ def fmt_pm(value_mm, u_mm, unit: str) -> str:
 
 def _num(summary: dict, key: str) -> float:
     v = summary.get(key)
-    return float(v) if _finite(v) else math.nan
+    return float(v) if is_number(v) else math.nan
 
 
 def _spherometer_text(s: dict, unit: str) -> str:
@@ -71,7 +67,7 @@ def _spherometer_text(s: dict, unit: str) -> str:
     if sph.get("kind"):
         parts.append(Spherometer(kind=sph["kind"], params_mm=dict(sph.get("params_mm") or {})).describe(unit))
     for key, name in (("ring_radius_mm", "ring radius"), ("foot_radius_mm", "foot radius"), ("resolution_mm", "one count")):
-        if _finite(s.get(key)):
+        if is_number(s.get(key)):
             parts.append(f"{name} {fmt_len(s[key], unit)}")
     return ", ".join(parts) or "not recorded"
 
@@ -86,15 +82,15 @@ def header_lines(run: Run, unit: str) -> list[str]:
     k, nu = _num(s, "coverage_factor"), _num(s, "dof_eff")
     cov = ", ".join(x for x in (f"k = {k:.2f}" if math.isfinite(k) else "", f"ν_eff = {nu:.0f}" if math.isfinite(nu) else "") if x)
     r_line = f"radius of curvature R = {fmt_pm(s.get('radius_mm'), s.get('radius_U_mm'), unit)}"
-    if _finite(s.get("radius_U_mm")):
+    if is_number(s.get("radius_U_mm")):
         r_line += f" (expanded, ~95 %{', ' + cov if cov else ''})"
     r_line += f"   focal length f = {fmt_pm(s.get('focal_length_mm'), s.get('focal_length_U_mm'), unit)}"
-    if _finite(s.get("focal_ratio")):
+    if is_number(s.get("focal_ratio")):
         r_line += f"   f/{s['focal_ratio']:.2f}"
     target = ""
-    if _finite(s.get("target_radius_mm")):
+    if is_number(s.get("target_radius_mm")):
         target = f"target R {fmt_len(s['target_radius_mm'], unit)}, R still to go {fmt_len(s.get('radius_to_go_mm'), unit, 4)}"
-        if _finite(s.get("sagitta_to_go_mm")):
+        if is_number(s.get("sagitta_to_go_mm")):
             target += f", sagitta still to go {fmt_len(s['sagitta_to_go_mm'], unit, 4)}"
     drift = _num(s, "drift_mm_per_min")
     z_line = (
@@ -151,7 +147,7 @@ def decimate_minmax(x: np.ndarray, y: np.ndarray, max_points: int) -> tuple[np.n
 
 def _break_at_gaps(x: np.ndarray, y: np.ndarray, gaps) -> tuple[np.ndarray, np.ndarray]:
     """Insert NaN at each stream gap so the trace is not drawn across missing data."""
-    starts = [g["t_start_s"] for g in gaps or [] if _finite(g.get("t_start_s"))]
+    starts = [g["t_start_s"] for g in gaps or [] if is_number(g.get("t_start_s"))]
     if not starts:
         return x, y
     at = np.searchsorted(x, np.asarray(starts, dtype=float), side="right")
@@ -173,7 +169,6 @@ def zero_at(summary: dict, t_s: np.ndarray) -> np.ndarray | None:
 def make_report_figure(run: Run, unit: str | None = None):
     """Build the report Figure (not saved), so callers and tests can inspect it."""
     unit = unit or run.unit
-    k = from_mm(1.0, unit)  # mm -> display unit (linear)
     s, sm, st = run.summary, run.samples, run.seatings
     fig = ps.new_figure(13, 9.5)
     grid = fig.add_gridspec(3, 2, height_ratios=[0.5, 1.35, 1.0])
@@ -181,18 +176,41 @@ def make_report_figure(run: Run, unit: str | None = None):
     trace = fig.add_subplot(grid[1, :], gid="trace")
     flats = fig.add_subplot(grid[2, 0], gid="zero")
     sag = fig.add_subplot(grid[2, 1], gid="sagitta")
-
-    head.axis("off")
-    lines = header_lines(run, unit)
-    head.text(0, 1, lines[0], va="top", ha="left", fontsize=12, fontweight="bold", transform=head.transAxes)
-    head.text(0, 0.72, "\n".join(lines[1:]), va="top", ha="left", fontsize=9, family="monospace",
-              transform=head.transAxes, linespacing=1.4)
+    _draw_header(head, header_lines(run, unit))
 
     t_end = _num(s, "t_end_s")
     if not math.isfinite(t_end):
         t_end = float(sm["t_s"].max()) if len(sm) else 0.0
+    seat = _Seatings(st, from_mm(1.0, unit))  # mm -> display unit (linear)
+    tt = np.array([0.0, max(t_end, 0.0)])
+    z = zero_at(s, tt)
+    _draw_trace(trace, s, sm, seat, tt, z, unit)
+    _draw_flats(flats, s, seat, tt, z, unit)
+    _draw_sagittas(sag, s, seat, unit)
+    return fig
 
-    # reading trace
+
+class _Seatings:
+    """The seatings table as the panels draw it: mid times (min), values in the display unit, masks."""
+
+    def __init__(self, st: pd.DataFrame, k: float):
+        self.table, self.k = st, k
+        self.mid_min = ((st["t_start_s"] + st["t_end_s"]) / 2 / 60).to_numpy()
+        self.val = st["value_mm"].to_numpy(dtype=float) * k
+        self.acc = st["accepted"].to_numpy(dtype=bool)
+        self.is_flat = (st["phase"] == "flat").to_numpy()
+
+
+def _draw_header(head, lines: list[str]) -> None:
+    head.axis("off")
+    head.text(0, 1, lines[0], va="top", ha="left", fontsize=12, fontweight="bold", transform=head.transAxes)
+    head.text(0, 0.72, "\n".join(lines[1:]), va="top", ha="left", fontsize=9, family="monospace",
+              transform=head.transAxes, linespacing=1.4)
+
+
+def _draw_trace(trace, s: dict, sm: pd.DataFrame, seat: _Seatings, tt: np.ndarray, z, unit: str) -> None:
+    """The reading trace, the seated windows, every seating and the fitted zero."""
+    k, st = seat.k, seat.table
     good = sm["value_mm"].notna().to_numpy()
     t = sm["t_s"].to_numpy(dtype=float)[good]
     v = sm["value_mm"].to_numpy(dtype=float)[good]
@@ -203,29 +221,24 @@ def make_report_figure(run: Run, unit: str | None = None):
     for phase, style in (("flat", ps.FLAT_WINDOW), ("surface", ps.SURFACE_WINDOW)):
         w = st[st["phase"] == phase]
         if len(w) > MAX_HATCHED_WINDOWS:  # hatching thousands of thin windows costs seconds, shows nothing
-            style = {k: v for k, v in style.items() if k != "hatch"}
+            style = {key: val for key, val in style.items() if key != "hatch"}
         if len(w):
             spans = list(zip(w["t_start_s"] / 60, (w["t_end_s"] - w["t_start_s"]) / 60))
             trace.broken_barh(spans, (0, 1), transform=trace.get_xaxis_transform(), gid=f"windows-{phase}",
                               label=f"seated on the {phase}", **style)
     for g in s.get("gaps") or []:
-        if _finite(g.get("t_start_s")) and _finite(g.get("t_end_s")):
+        if is_number(g.get("t_start_s")) and is_number(g.get("t_end_s")):
             trace.axvspan(g["t_start_s"] / 60, g["t_end_s"] / 60, color=ps.GREY, alpha=0.2, gid="gap")
 
-    mid_min = ((st["t_start_s"] + st["t_end_s"]) / 2 / 60).to_numpy()
-    val = st["value_mm"].to_numpy(dtype=float) * k
-    acc = st["accepted"].to_numpy(dtype=bool)
-    is_flat = (st["phase"] == "flat").to_numpy()
+    acc, is_flat = seat.acc, seat.is_flat
     for mask, gid, style, name in (
         (acc & is_flat, "seatings-flat", ps.FLAT_SEATING, "flat seating"),
         (acc & ~is_flat, "seatings-surface", ps.SURFACE_SEATING, "surface seating"),
         (~acc, "seatings-rejected", ps.REJECTED_SEATING, "rejected seating"),
     ):
-        trace.plot(mid_min[mask], val[mask], gid=gid, label=f"{name} ({int(mask.sum())})", **style)
-    _annotate_rejected(trace, st[~acc], mid_min[~acc], val[~acc])
+        trace.plot(seat.mid_min[mask], seat.val[mask], gid=gid, label=f"{name} ({int(mask.sum())})", **style)
+    _annotate_rejected(trace, st[~acc], seat.mid_min[~acc], seat.val[~acc])
 
-    tt = np.array([0.0, max(t_end, 0.0)])
-    z = zero_at(s, tt)
     if z is not None:
         trace.plot(tt / 60, z * k, gid="zero-drift", label=f"fitted zero ({s.get('drift_model') or 'no model'})", **ps.ZERO_LINE)
     trace.set_xlabel("time since start (min)")
@@ -233,10 +246,12 @@ def make_report_figure(run: Run, unit: str | None = None):
     trace.set_title("readings, seated windows and seatings", loc="left", fontsize=10)
     trace.legend(loc="upper left", bbox_to_anchor=(1.0, 1.0), fontsize=8, frameon=False)
 
-    # flats close up against the zero line
-    fm = is_flat
-    flats.plot(mid_min[fm & acc], val[fm & acc], gid="flats-accepted", **ps.FLAT_SEATING)
-    flats.plot(mid_min[fm & ~acc], val[fm & ~acc], gid="flats-rejected", **ps.REJECTED_SEATING)
+
+def _draw_flats(flats, s: dict, seat: _Seatings, tt: np.ndarray, z, unit: str) -> None:
+    """The flats close up against the zero line and its standard uncertainty."""
+    k, fm, acc = seat.k, seat.is_flat, seat.acc
+    flats.plot(seat.mid_min[fm & acc], seat.val[fm & acc], gid="flats-accepted", **ps.FLAT_SEATING)
+    flats.plot(seat.mid_min[fm & ~acc], seat.val[fm & ~acc], gid="flats-rejected", **ps.REJECTED_SEATING)
     if z is not None:
         flats.plot(tt / 60, z * k, gid="zero-drift-close", label="fitted zero", **ps.ZERO_LINE)
         zu = _num(s, "zero_u_mm")
@@ -247,9 +262,12 @@ def make_report_figure(run: Run, unit: str | None = None):
     flats.set_ylabel(f"reading on the flat ({unit})")
     flats.set_title("zero on the reference flat", loc="left", fontsize=10)
 
-    # accepted sagittas with the mean and its standard uncertainty
+
+def _draw_sagittas(sag, s: dict, seat: _Seatings, unit: str) -> None:
+    """The accepted sagittas with their mean and its standard uncertainty."""
+    k, st, acc, is_flat = seat.k, seat.table, seat.acc, seat.is_flat
     sm_mask = acc & ~is_flat & st["sagitta_mm"].notna().to_numpy()
-    sag.plot(mid_min[sm_mask], st["sagitta_mm"].to_numpy(dtype=float)[sm_mask] * k, gid="sagittas",
+    sag.plot(seat.mid_min[sm_mask], st["sagitta_mm"].to_numpy(dtype=float)[sm_mask] * k, gid="sagittas",
              label=f"accepted ({int(sm_mask.sum())})", **ps.SURFACE_SEATING)
     mean, u = _num(s, "sagitta_mm"), _num(s, "sagitta_u_mm")
     if math.isfinite(mean):
@@ -262,13 +280,12 @@ def make_report_figure(run: Run, unit: str | None = None):
     sag.set_ylabel(f"sagitta ({unit})")
     if sm_mask.any() or math.isfinite(mean):
         sag.legend(loc="best", fontsize=8)
-    return fig
 
 
 def _annotate_rejected(ax, rejected: pd.DataFrame, x: np.ndarray, y: np.ndarray) -> None:
     for j, (reason, xi, yi) in enumerate(zip(rejected["reason"], x, y)):
         if j == MAX_REASON_NOTES:
-            ax.text(0.99, 0.02, f"+{len(x) - j} more rejected: see report.md", transform=ax.transAxes,
+            ax.text(0.99, 0.02, f"+{len(x) - j} more rejected: see {REPORT_TEXT}", transform=ax.transAxes,
                     ha="right", fontsize=7, color=ps.VERMILLION, gid="reason-more")
             break
         ax.annotate(reason or "rejected", (xi, yi), xytext=(6, 8 + 11 * (j % 3)), textcoords="offset points",
@@ -305,8 +322,8 @@ def report_markdown(run: Run, unit: str | None = None) -> str:
             dof = b.get("dof")
             out.append(
                 f"| {b.get('name', '?')} | {b.get('kind') or ''} | {fmt_len(b.get('u_mm'), unit, 3)} | "
-                f"{f'{sens:.4g}' if _finite(sens) else 'n/a'} | {fmt_len(b.get('contribution_mm'), unit, 3)} | "
-                f"{f'{dof:g}' if _finite(dof) else '∞'} |"
+                f"{f'{sens:.4g}' if is_number(sens) else 'n/a'} | {fmt_len(b.get('contribution_mm'), unit, 3)} | "
+                f"{f'{dof:g}' if is_number(dof) else '∞'} |"
             )
         k = _num(s, "coverage_factor")
         out.append(f"| **combined** | | | | {fmt_len(s.get('radius_u_mm'), unit, 3)} | {fmt_dof(s.get('dof_eff'))} |")
@@ -316,12 +333,12 @@ def report_markdown(run: Run, unit: str | None = None) -> str:
         )
     else:
         out.append("No budget: the radius was not estimable in this run.")
-    out += ["", f"Lengths in {unit}; the run's files hold millimetres. Figure: report.png.", ""]
+    out += ["", f"Lengths in {unit}; the run's files hold millimetres. Figure: {REPORT_PICTURE}.", ""]
     return "\n".join(out)
 
 
 def fmt_dof(dof) -> str:
-    return f"{dof:.1f}" if _finite(dof) else "∞"
+    return f"{dof:.1f}" if is_number(dof) else "∞"
 
 
 def write_report(run_dir, unit: str | None = None) -> tuple[Path, Path]:

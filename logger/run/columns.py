@@ -51,3 +51,5 @@ SUMMARY_FILE, SEATINGS_FILE, SAMPLES_FILE, SETTINGS_FILE, RECORDING_FILE = (
     "stream.rec",
 )
 REPORT_PICTURE, REPORT_TEXT = "report.png", "report.md"  # written by `saglog report`
+
+TABLES = ((SEATINGS_FILE, SEATINGS_COLUMNS), (SAMPLES_FILE, SAMPLES_COLUMNS))  # the CSV files, as documented

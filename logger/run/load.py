@@ -4,9 +4,9 @@ A run folder is the program's lasting output (summary.json, seatings.csv,
 samples.csv, settings.json, stream.rec).  This module is the one reader of
 it, so the report, the history and a user's own notebook all see the same
 typed tables: times as UTC datetimes, `accepted` as bool, numbers as floats
-with NaN where the file has an empty cell.  The column documentation lives
-here once (`SEATINGS_COLUMNS`, `SAMPLES_COLUMNS`); docs/reports.md
-holds `columns_markdown()` verbatim and a test keeps the two identical.
+with NaN where the file has an empty cell.  The columns are documented
+once, in logger.run.columns; docs/reports.md holds `columns_markdown()`
+verbatim and a test keeps the two identical.
 Text cells may carry a leading apostrophe that keeps spreadsheets from
 running them as formulas; the loader removes it.
 
@@ -23,8 +23,8 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from logger.run.columns import (Column, RECORDING_FILE, SAMPLES_COLUMNS, SAMPLES_FILE, SEATINGS_COLUMNS, SEATINGS_FILE,
-                      SETTINGS_FILE, SUMMARY_FILE)
+from logger.run.columns import (TABLES, Column, RECORDING_FILE, SAMPLES_COLUMNS, SAMPLES_FILE, SEATINGS_COLUMNS,
+                                SEATINGS_FILE, SETTINGS_FILE, SUMMARY_FILE)
 from logger.errors import UserError
 from logger.units import check_unit
 
@@ -32,7 +32,7 @@ from logger.units import check_unit
 def columns_markdown() -> str:
     """The CSV column documentation as Markdown (copied verbatim into docs/reports.md)."""
     out = []
-    for fname, cols in ((SEATINGS_FILE, SEATINGS_COLUMNS), (SAMPLES_FILE, SAMPLES_COLUMNS)):
+    for fname, cols in TABLES:
         out += [f"`{fname}` columns, in this order:", "", "| column | loaded as | meaning |", "|---|---|---|"]
         out += [f"| `{c.name}` | {c.kind} | {c.doc} |" for c in cols]
         out.append("")

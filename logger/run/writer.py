@@ -103,7 +103,7 @@ def prepare_folder(out_dir: str | Path, force: bool = False) -> Path:
     if out.exists() and not out.is_dir():
         raise UserError(f"{out}: exists and is not a folder")
     if out.is_dir() and (out / SUMMARY_FILE).exists() and not force:
-        raise UserError(f"{out}: already holds a run (summary.json); choose another --out or pass --force")
+        raise UserError(f"{out}: already holds a run ({SUMMARY_FILE}); choose another --out or pass --force")
     try:
         out.mkdir(parents=True, exist_ok=True)
     except OSError as exc:

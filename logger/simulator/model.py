@@ -145,23 +145,7 @@ class SimRun:
         self.duration_s = seatings[-1]["t_end_s"] + sc.tail_s
         self._segs = segs
         self._seg_t0 = np.array([s.t0 for s in segs])
-
-        # Faults, drawn from their own generator so they do not shift the seatings.
-        frng = np.random.default_rng([seed, 2])
-        self._gaps: list[tuple[float, float]] = []
-        if sc.disconnect_at_s is not None and sc.disconnect_at_s < self.duration_s:
-            end = self.duration_s if sc.disconnect_for_s is None else sc.disconnect_at_s + sc.disconnect_for_s
-            self._gaps.append((sc.disconnect_at_s, min(end, self.duration_s)))
-        n_garbage = int(frng.poisson(sc.garbage_per_min * self.duration_s / 60.0)) if sc.garbage_per_min else 0
-        g_times = np.sort(frng.uniform(0.0, self.duration_s, n_garbage))
-        self._garbage = []
-        for gt in g_times:
-            size = int(frng.integers(3, 17))
-            body = bytes(frng.choice(np.r_[0x00, np.arange(0x80, 0x100)], size).astype(np.uint8))
-            if not self._in_gap(gt):
-                self._garbage.append((float(gt), body + ENDINGS[sc.ending]))
-        self._half_lead = bytes([int(frng.integers(0x80, 0x100))])
-        self._half_cut = float(frng.random())
+        self._draw_faults(seed)
 
         counts = {
             "flat": sum(s["phase"] == "flat" for s in seatings),
@@ -182,6 +166,25 @@ class SimRun:
             "garbage_lines": len(self._garbage), "half_line": sc.half_line_at_start,
             "disconnects": [{"t_start_s": a, "t_end_s": b} for a, b in self._gaps],
         }
+
+    def _draw_faults(self, seed: int) -> None:
+        """Faults, drawn from their own generator so they do not shift the seatings."""
+        sc = self.scenario
+        frng = np.random.default_rng([seed, 2])
+        self._gaps: list[tuple[float, float]] = []
+        if sc.disconnect_at_s is not None and sc.disconnect_at_s < self.duration_s:
+            end = self.duration_s if sc.disconnect_for_s is None else sc.disconnect_at_s + sc.disconnect_for_s
+            self._gaps.append((sc.disconnect_at_s, min(end, self.duration_s)))
+        n_garbage = int(frng.poisson(sc.garbage_per_min * self.duration_s / 60.0)) if sc.garbage_per_min else 0
+        g_times = np.sort(frng.uniform(0.0, self.duration_s, n_garbage))
+        self._garbage = []
+        for gt in g_times:
+            size = int(frng.integers(3, 17))
+            body = bytes(frng.choice(np.r_[0x00, np.arange(0x80, 0x100)], size).astype(np.uint8))
+            if not self._in_gap(gt):
+                self._garbage.append((float(gt), body + ENDINGS[sc.ending]))
+        self._half_lead = bytes([int(frng.integers(0x80, 0x100))])
+        self._half_cut = float(frng.random())
 
     def _zero(self, t_s: float) -> float:
         return self.scenario.zero_mm + self.scenario.drift_mm_per_min * t_s / 60.0

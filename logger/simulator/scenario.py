@@ -10,11 +10,11 @@ from __future__ import annotations
 
 import dataclasses
 import difflib
-import math
 import tomllib
 from dataclasses import dataclass
 from pathlib import Path
 
+from logger.checks import is_positive
 from logger.errors import UserError
 from logger.config.profile import PROFILE_DIR, Profile, load_profile
 from logger.units import check_unit, to_mm
@@ -119,12 +119,12 @@ class Scenario:
         for key in ("radius_mm", "seated_s", "lifted_s", "lift_mm", "settle_tau_s", "lift_tau_s", "rate_hz",
                     "step"):
             v = getattr(self, key)
-            if not (isinstance(v, (int, float)) and math.isfinite(v) and v > 0):
+            if not is_positive(v):
                 raise UserError(f"{where}: {key} must be a positive number, got {v!r}")
         for key in ("lead_in_s", "tail_s", "scatter_mm", "noise_mm", "grit_offset_mm", "rock_amplitude_mm",
                     "garbage_per_min", "overshoot"):
             v = getattr(self, key)
-            if not (isinstance(v, (int, float)) and math.isfinite(v) and v >= 0):
+            if not is_positive(v, allow_zero=True):
                 raise UserError(f"{where}: {key} must be a number >= 0, got {v!r}")
         if not 1 <= self.rate_hz <= 20000:
             raise UserError(f"{where}: rate must be between 1 and 20000 lines per second, got {self.rate_hz!r}")
@@ -231,7 +231,7 @@ def parse_scenario(data: dict, source: str, base_dir: Path) -> Scenario:
                 want = float if kind in ("L", "S") else kind  # L: length >= 0, S: signed length
                 raw[name] = (_typed(tab[key], want, f"{where} {key}"), kind)
     if "profile" not in raw:
-        raise UserError(f"{source}: missing key 'profile' (a profile file, or a name in logger/profiles)")
+        raise UserError(f"{source}: missing key 'profile' (a profile file, or the name of a shipped profile)")
     file_unit = check_unit(raw.pop("file_unit", ("mm", str))[0], f"{source}: unit")
     for name, (value, kind) in raw.items():
         if kind in ("L", "S"):

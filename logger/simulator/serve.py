@@ -19,6 +19,7 @@ import threading
 import time
 import tty
 
+from logger.checks import is_positive
 from logger.simulator.model import SimRun
 
 _SLICE_S = 0.05  # longest sleep between checks of the stop flag and the client
@@ -28,7 +29,7 @@ class _Server(abc.ABC):
     """Pacing loop shared by the transports; a subclass moves the bytes."""
 
     def __init__(self, run: SimRun, speed: float = 1.0, wait_for_client: bool = True):
-        if not speed > 0:
+        if not is_positive(speed):
             raise ValueError("speed must be positive")
         self.run = run
         self.speed = float(speed)

@@ -16,6 +16,7 @@ import time
 import serial
 import serial.tools.list_ports
 
+from logger.checks import is_positive
 from logger.errors import DeviceGone, DeviceNotFound, UserError
 
 PARITIES = {"N": serial.PARITY_NONE, "E": serial.PARITY_EVEN, "O": serial.PARITY_ODD,
@@ -36,7 +37,7 @@ class SerialSource:
         self.parity = _check_choice(str(parity).upper()[:1], tuple(PARITIES), "parity")
         self.stopbits = _check_choice(_as_number(stopbits, "stop bits"), STOPBITS, "stop bits")
         self.poll_command = bytes(poll_command) if poll_command else None
-        if not poll_interval_s > 0:
+        if not is_positive(poll_interval_s):
             raise UserError(f"poll interval must be positive, got {poll_interval_s!r}")
         self.poll_interval_s = float(poll_interval_s)
         self.read_timeout_s = float(read_timeout_s)

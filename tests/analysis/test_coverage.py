@@ -13,7 +13,7 @@ stated Type B terms.
 The simulator places its seatings with logger.analysis.geometry, the same relation
 the analysis inverts, so this study checks the detection, the statistics
 and the budget, not the geometry; the geometry is checked against exact
-constructions in tests/test_geometry.py and tests/test_simulator.py.
+constructions in tests/analysis/test_geometry.py and tests/simulator/test_simulator.py.
 """
 
 from __future__ import annotations

@@ -37,7 +37,7 @@ def _profile_three_ball(legs, ball_d, unit):
 @given(legs=triangles(), rho_frac=st.floats(0.0, 0.15), ratio=st.floats(1.05, 300.0), surface=SURFACES,
        unit=st.sampled_from(["mm", "in"]))
 def test_three_ball_exact_construction(legs, rho_frac, ratio, surface, unit):
-    # Source: exact construction (tests/exact_construction.py): balls placed on a sphere in 3-D,
+    # Source: exact construction (tests/helpers/exact_construction.py): balls placed on a sphere in 3-D,
     # reading taken where the probe axis meets the sphere.  Lengths drawn in the profile's unit.
     legs_u = [x / 25.4 for x in legs] if unit == "in" else list(legs)
     legs_mm = [to_mm(x, unit) for x in legs_u]
@@ -54,7 +54,7 @@ def test_three_ball_exact_construction(legs, rho_frac, ratio, surface, unit):
 
 
 def test_feet_sign_by_construction():
-    # Source: exact construction.  DESIGN.md warns a widely copied source has the concave sign reversed:
+    # Source: exact construction.  A widely copied source has the concave sign reversed (README.md):
     # with feet the concave radius is LARGER than the point-contact formula, the convex one SMALLER.
     legs, rho, R = (60.0, 60.0, 60.0), 3.0, 1000.0
     r = geometry.circumradius_mm(*legs)
@@ -170,7 +170,7 @@ def test_focal_length_is_half_radius_by_ray_trace(R):
 
 
 def test_dradius_dsagitta_vs_sympy():
-    # Source: sympy differentiation of R = (r^2 + s^2)/(2 s) +- rho (DESIGN.md relation).
+    # Source: sympy differentiation of R = (r^2 + s^2)/(2 s) +- rho (the relation in docs/measurement.md).
     s, r, rho = sympy.symbols("s r rho", positive=True)
     for sign in (+1, -1):
         dR = sympy.diff((r**2 + s**2) / (2 * s) + sign * rho, s)

@@ -5,10 +5,12 @@ from __future__ import annotations
 import math
 
 import numpy as np
+import pytest
 from hypothesis import given, settings, strategies as st
 from scipy import stats
 
 from logger.analysis import outliers
+from logger.errors import UserError
 
 
 def test_modified_z_constant_is_the_normal_quartile():
@@ -19,7 +21,7 @@ def test_modified_z_constant_is_the_normal_quartile():
 @settings(max_examples=60, deadline=None)
 @given(st.lists(st.floats(-1, 1, allow_nan=False), min_size=3, max_size=40), st.floats(1e-6, 1e-2))
 def test_modified_z_against_scipy_mad(values, floor):
-    # MAD from scipy.stats.median_abs_deviation (scale=1), floored at the step as DESIGN.md asks
+    # MAD from scipy.stats.median_abs_deviation (scale=1), floored at one count as README.md states
     x = np.asarray(values)
     mad = max(stats.median_abs_deviation(x, scale=1.0), floor)
     expected = 0.6745 * (x - np.median(x)) / mad
@@ -66,3 +68,20 @@ def test_chauvenet_threshold():
 def test_fewer_than_three_are_never_judged():
     for method in outliers.METHODS:
         assert outliers.judge([0.0, 10.0], method, 0.001) == [(False, 0.0, "")] * 2
+
+
+def test_each_method_name_runs_its_own_test():
+    # a value far out among five: each named method gives its own published statistic, "none" keeps all
+    x = [0.0, 0.001, -0.001, 0.002, 0.5]
+    assert outliers.METHODS == ("modified-z", "grubbs", "chauvenet", "none")
+    assert outliers.judge(x, "modified-z", 1e-6, 3.5) == outliers.modified_z(x, 1e-6, 3.5)
+    assert outliers.judge(x, "grubbs", 1e-6) == outliers.grubbs(x, 1e-6)
+    assert outliers.judge(x, "chauvenet", 1e-6) == outliers.chauvenet(x, 1e-6)
+    assert outliers.judge(x, "none", 1e-6) == [(False, 0.0, "")] * len(x)
+    assert outliers.judge(x, "grubbs", 1e-6) != outliers.judge(x, "chauvenet", 1e-6)
+
+
+@pytest.mark.parametrize("values", [[0.0, 0.001, 0.5, 0.002], [0.0, 1.0]])
+def test_an_unknown_method_is_a_user_error_never_chauvenet(values):
+    with pytest.raises(UserError, match=r"rejection method 'chauvenets' is not known \(known: modified-z, grubbs, chauvenet, none\)"):
+        outliers.judge(values, "chauvenets", 1e-6)

@@ -1,6 +1,6 @@
 """The session: phases, zero, drift, rejection and the radius, against exact constructions.
 
-Seatings here are made from the exact construction in tests/exact_construction.py
+Seatings here are made from the exact construction in tests/helpers/exact_construction.py
 (balls placed on a sphere in space), not from logger's formulas.
 """
 
@@ -148,7 +148,7 @@ def test_budget_combines_as_gum_equation_10():
     res = analyse(seatings, make_profile(), AnalysisSettings())
     sag = np.array([d.sagitta_mm for d in res.decisions if d.phase == "surface" and d.accepted])
     u_a = sag.std(ddof=1) / math.sqrt(len(sag))
-    # scatter above one count: the step is dithered away, no resolution term (DESIGN.md, common practice)
+    # scatter above one count: the step is dithered away, no resolution term (docs/measurement.md, common practice)
     assert not any("resolution" in c.name for c in res.budget.components)
     u_zero = res.summary["zero_u_mm"]
     u_s = math.sqrt(u_a**2 + u_zero**2)

@@ -105,7 +105,7 @@ def test_component_rules():
 
 
 def test_reading_components_keep_resolution_only_below_one_count():
-    # Source: DESIGN.md rule (common practice): averaging beats the step only when the scatter is at
+    # Source: the rule in docs/measurement.md (common practice): averaging beats the step only when the scatter is at
     # least about one count.
     names = lambda comps: [c.name for c in comps]  # noqa: E731
     assert len(reading_components(0.001)) == 2

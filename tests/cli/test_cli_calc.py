@@ -68,7 +68,7 @@ def seated(draw):
 @settings(max_examples=40, deadline=None)
 @given(seated())
 def test_radius_json_matches_exact_construction(case):
-    # Source: exact construction (tests/exact_construction.py): the reading a sphere of radius R gives,
+    # Source: exact construction (tests/helpers/exact_construction.py): the reading a sphere of radius R gives,
     # fed back through `saglog radius --json`, must give R (and f = R/2, textbook) to 1e-6 relative.
     unit, legs, ball, ratio, surface = case
     k = UNIT_SCALE[unit]

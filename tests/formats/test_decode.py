@@ -1,7 +1,7 @@
-"""Decoder and line splitter: a table of lines from CONTRACT.md and property tests.
+"""Decoder and line splitter: a table of the lines docs/streams.md describes, and property tests.
 
 The reference for splitting is a byte-by-byte state machine written here,
-independent of the regular expressions in logger/decode.py.  The reference
+independent of the regular expressions in logger/formats/decode.py.  The reference
 for values is Python's decimal arithmetic with the inch defined as exactly
 25.4 mm (international yard and pound agreement, 1959).
 """
@@ -15,6 +15,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from logger.formats import decode
 from logger.formats.decode import MAX_LINE, Decoder, LineSplitter
 
 INCH = Decimal("25.4")  # exact by definition
@@ -229,3 +230,19 @@ def test_decoder_never_raises_and_rejects_non_ascii(raw):
     r = Decoder().decode(raw, 0.0, 0.0)
     if re.search(rb"[^\x20-\x7e\t\r]", raw):
         assert r.value_mm is None and r.bad
+
+
+def test_line_formats_are_tried_in_their_declared_order(monkeypatch):
+    # The indicator's own line first, then the bridge's raw-frame line (firmware_notes/README.md);
+    # a format added to the tuple is tried after them, and only for lines they do not read.
+    assert [name for name, _ in decode.LINE_FORMATS] == ["indicator", "bridge-frame"]
+    # the README's example frame: bytes D2 04 00, first-sent bit lowest -> 0x4D2 = 1234 counts of 0.01 mm
+    assert Decoder().decode(b"F:sign24:24:D20400", 0, 0).value_mm == pytest.approx(12.34, rel=1e-15)
+
+    def hundredths(raw, default_unit):  # an invented format: "H<counts>" in 0.01 mm
+        return (int(raw[1:]) / 100, "mm") if raw[:1] == b"H" and raw[1:].isdigit() else None
+
+    monkeypatch.setattr(decode, "LINE_FORMATS", decode.LINE_FORMATS + (("hundredths", hundredths),))
+    d = Decoder()
+    assert [d.decode(x, 0, 0).value_mm for x in (b"H250", b"2.5", b"Hx")] == [2.5, 2.5, None]
+    assert d.decode(b"H" + b"1" * MAX_LINE, 0, 0).bad == "over-long line"  # the length bound holds for every format

@@ -58,6 +58,9 @@ def test_vectors_file_is_consistent():
         packed = bytes.fromhex(v["hex"])
         assert len(packed) == (len(bits) + 7) // 8, v["name"]
         assert int.from_bytes(packed, "little") == sum(b << i for i, b in enumerate(bits)), v["name"]
+        # The raw-frame line as the README's output section writes it: the bit count (65 past the
+        # 64-bit buffer) and the frame's bytes, only the first 8 past it.
+        assert v["raw"] == f"F:{v['variant']}:{min(len(bits), 65)}:{v['hex'][:16]}", v["name"]
     assert {v["variant"] for v in VEC} == set(FRAME_BITS)
     reasons = {v["expect"] for v in VEC if v["expect"].startswith("reject:")}
     assert reasons == {f"reject:{r}" for r in ("length", "sign", "flags", "header", "digit", "decimals")}
@@ -69,7 +72,7 @@ def test_python_decoder_on_vectors(v):
     bits = [int(c) for c in v["bits"]]
     assert python_result(v["variant"], bits) == v["expect"]
     expect = v["expect"]
-    line = f"F:{v['variant']}:{min(len(bits), 65)}:{v['hex'][:16]}".encode()
+    line = v["raw"].encode()
     if expect.startswith("reject:"):
         with pytest.raises(ValueError):
             decode_frame(v["variant"], bits)
@@ -108,6 +111,7 @@ def test_c_decoder_agrees_with_python(c_results):
         result, raw = c_results[v["name"]]
         bits = [int(c) for c in v["bits"]]
         assert result == python_result(v["variant"], bits), v["name"]
+        assert raw == v["raw"], v["name"]  # the vectors' hand-worked raw-frame line
         # The C bridge's raw-frame line, read back by the Python decoder.
         got = decode_frame_line(raw.encode())
         if result.startswith("reject:"):

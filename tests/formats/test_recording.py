@@ -1,4 +1,4 @@
-"""Recording format (*.rec), checked against the definition in CONTRACT.md.
+"""Recording format (*.rec), checked against its definition in docs/streams.md ("Recording format").
 
 The escape rule is restated here byte by byte (every byte outside 0x20..0x7E
 and the backslash become \\xHH, lower-case hex) rather than taken from the code.

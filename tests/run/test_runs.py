@@ -6,9 +6,7 @@ uses the standard csv and json modules, not pandas.
 
 from __future__ import annotations
 
-import json
 import math
-from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -19,7 +17,7 @@ from hypothesis import strategies as st
 from logger.errors import UserError
 from logger.run.load import columns_markdown, load_run, load_runs, runs_table
 from tests.helpers.paths import ROOT as REPO
-from tests.helpers.runfolder import SAMPLE_FIELDS, SEAT_FIELDS, iso, write_csv, write_run
+from tests.helpers.runfolder import SAMPLE_FIELDS, SEAT_FIELDS, write_csv, write_run
 
 
 # ---------------------------------------------------------------------------
