@@ -7,6 +7,7 @@ import signal
 import click
 
 from logger.cli.options import NON_NEGATIVE, POSITIVE, analysis_options, terminal_watchers, view_option
+from logger.cli.stand import stand_options, stand_watchers
 from logger.live.capture import Stop, capture
 from logger.live.present import result_lines
 
@@ -29,9 +30,10 @@ from logger.live.present import result_lines
 @view_option
 @click.option("--quiet", is_flag=True, help="No bell cues.")
 @click.option("--force", is_flag=True, help="Write into a run folder that already holds a run.")
+@stand_options
 @analysis_options
 def capture_cmd(port, out_dir, baudrate, bytesize, parity, stopbits, poll, poll_every, duration_s,
-                surface_seatings, wait_s, view, quiet, force, profile, run_settings):
+                surface_seatings, wait_s, view, quiet, force, web, web_key, speak, profile, run_settings):
     """Log the indicator live, notice every seating, and keep the run folder up to date.
 
     Seat on the flat first (the zero), then on the surface, and on the flat
@@ -44,6 +46,7 @@ def capture_cmd(port, out_dir, baudrate, bytesize, parity, stopbits, poll, poll_
     signal.signal(signal.SIGTERM, stop)
     signal.signal(signal.SIGINT, stop)
     watchers, shown = terminal_watchers(view, profile.unit, port, bells=not quiet)
+    watchers += stand_watchers(web, web_key, speak, profile.unit, watchers[0])
     with shown:
         summary = capture(port, profile, run_settings, out_dir, baudrate=baudrate, bytesize=int(bytesize),
                           parity=parity, stopbits=float(stopbits), poll_command=poll_bytes,

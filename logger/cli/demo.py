@@ -10,6 +10,7 @@ from pathlib import Path
 import click
 
 from logger.cli.options import terminal_watchers, view_option
+from logger.cli.stand import stand_options, stand_watchers
 from logger.live.demo import run_demo
 from logger.live.present import result_lines
 from logger.run.columns import RECORDING_FILE, REPORT_PICTURE, REPORT_TEXT
@@ -19,7 +20,8 @@ from logger.run.columns import RECORDING_FILE, REPORT_PICTURE, REPORT_TEXT
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
               help="Run folder (default: runs/demo-<time>).")
 @view_option
-def demo_cmd(out_dir, view):
+@stand_options
+def demo_cmd(out_dir, view, web, web_key, speak):
     """Capture an invented session from a virtual indicator on a real pseudo-terminal.
 
     A 150 mm f/8 mirror in fine grinding (invented numbers): four seatings on
@@ -29,6 +31,7 @@ def demo_cmd(out_dir, view):
     out = Path(out_dir) if out_dir else Path("runs") / time.strftime("demo-%Y%m%d-%H%M%S")
     click.echo("saglog demo: an invented 150 mm f/8 mirror, played by a virtual indicator on a pseudo-terminal")
     watchers, shown = terminal_watchers(view, "mm", "virtual indicator", bells=False)
+    watchers += stand_watchers(web, web_key, speak, "mm", watchers[0])
     with shown:
         summary = run_demo(out, watchers)
     click.echo("")

@@ -81,17 +81,20 @@ def write_atomic(path: Path, data: str | bytes) -> None:
         raise cannot_write(path, exc, f"earlier files in {path.parent} are kept") from None
 
 
+def without_nan(x):
+    """The same object with every NaN or infinity made None (null in JSON), for files and the stand page alike."""
+    if isinstance(x, float) and not math.isfinite(x):
+        return None
+    if isinstance(x, dict):
+        return {k: without_nan(v) for k, v in x.items()}
+    if isinstance(x, (list, tuple)):
+        return [without_nan(v) for v in x]
+    return x
+
+
 def json_text(obj) -> str:
     """JSON with no NaN or infinity: those become null."""
-    def clean(x):
-        if isinstance(x, float) and not math.isfinite(x):
-            return None
-        if isinstance(x, dict):
-            return {k: clean(v) for k, v in x.items()}
-        if isinstance(x, (list, tuple)):
-            return [clean(v) for v in x]
-        return x
-    return json.dumps(clean(obj), indent=2, allow_nan=False) + "\n"
+    return json.dumps(without_nan(obj), indent=2, allow_nan=False) + "\n"
 
 
 def prepare_folder(out_dir: str | Path, force: bool = False) -> Path:

@@ -23,3 +23,21 @@ def analyse_run(run, profile=None, analysis: AnalysisSettings | None = None) -> 
     for gap in run.truth.get("disconnects", []):
         pipeline.gaps.append(gap)
     return pipeline.finish(run.duration_s)
+
+
+def live_session(listeners, scenario: str, analysis: AnalysisSettings | None = None) -> Pipeline:
+    """A shipped scenario through the live pipeline in memory, told to `listeners` as a capture tells them
+    (every seating analysed at once, a tick after every line); no real time passes."""
+    from logger.simulator import load_scenario, simulate
+
+    run = simulate(load_scenario(scenario))
+    profile = run.scenario.profile
+    settings = RunSettings(DetectorSettings.for_step(profile.indicator.resolution_mm), analysis or AnalysisSettings())
+    pipeline = Pipeline(profile, settings, listeners, 0.0)
+    splitter = LineSplitter()
+    for t, data in run.lines():
+        for raw in splitter.feed(data):
+            pipeline.line(t, raw)
+        pipeline.tick(t)
+    pipeline.finish(run.duration_s)
+    return pipeline

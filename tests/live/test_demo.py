@@ -10,8 +10,9 @@ from logger.simulator import load_scenario, simulate
 
 def test_demo_runs_the_whole_job(tmp_path):
     out = tmp_path / "demo"
-    r = run_saglog("demo", "--out", out, timeout=150)
+    r = run_saglog("demo", "--out", out, "--web", "127.0.0.1:0", timeout=150)  # with the stand page (tests/stand)
     assert r.returncode == 0, r.stderr
+    assert r.stdout.splitlines()[1].startswith("page: http://127.0.0.1:")
     assert "Traceback" not in r.stderr
     assert f"run folder: {out}" in r.stdout and "saglog report" in r.stdout  # offers the next commands
     summary = json.loads((out / "summary.json").read_text())
