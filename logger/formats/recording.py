@@ -191,15 +191,21 @@ def read_recording(path, on_comment: Callable[[str], None] | None = None
     samples.csv shows).  Comments between records (a capture's "gap T0 T1"
     and "end T") go to `on_comment`, in order with the records.
     """
+    header, p, f, first, lineno = open_recording(path)
+    return header, _records(p, f, first, lineno, on_comment)
+
+
+def open_recording(path) -> tuple[dict, Path, object, bytes | None, int]:
+    """The header, the open file, its first record line (None if none) and the number of lines before it."""
     p, f = _open(path, "recording")
     header: dict = {}
     lineno = 0
     first = None
     for line in f:
-        lineno += 1
         if not line.startswith(b"#"):
             first = line
             break
+        lineno += 1
         text = line[1:].decode("utf-8", "replace").strip()
         key, sep, value = text.partition(":")
         if sep and key and " " not in key.strip():
@@ -208,57 +214,70 @@ def read_recording(path, on_comment: Callable[[str], None] | None = None
         start = parse_iso_utc(header["start_utc"])
         if start is not None:
             header["start_wall"] = start
-    # the first record was read (and counted) above; _records counts it again
-    return header, _records(p, f, first, lineno - 1 if first is not None else lineno, on_comment)
+    return header, p, f, first, lineno
+
+
+def record_blocks(f, first: bytes | None, size: int = _BLOCK) -> Iterator[bytes]:
+    """The records from `first` on, in blocks of whole lines of about `size` bytes (the last may lack its LF)."""
+    if first is None:
+        return
+    carry = first
+    while True:
+        block = f.read(size)
+        if not block:
+            if carry:
+                yield carry
+            return
+        data = carry + block
+        cut = data.rfind(b"\n") + 1
+        data, carry = data[:cut], data[cut:]
+        if data:
+            yield data
 
 
 def _records(p: Path, f, first: bytes | None, lineno: int, on_comment) -> Iterator[tuple[float, bytes, str]]:
     with f:
-        if first is None:
-            return
-        carry = first
-        while True:
-            block = f.read(_BLOCK)
-            data = carry + block
-            if block:
-                cut = data.rfind(b"\n") + 1
-                data, carry = data[:cut], data[cut:]
-            lines = data.split(b"\n")
-            if lines[-1] == b"":
-                lines.pop()
-            # One scan per block instead of one per line: a block of plain
-            # printable records (the usual case) skips the per-line checks.
-            clean = not _BAD_BLOCK.search(data)
-            for line in lines:
-                lineno += 1
-                t_text, tab, field = line.partition(b"\t")
-                try:
-                    t_s = float(t_text)
-                except ValueError:
-                    if line[:1] == b"#":
-                        if on_comment is not None:
-                            on_comment(line[1:].decode("utf-8", "replace").strip())
-                        continue
-                    if not line.strip():
-                        continue
-                    raise UserError(f"{p}:{lineno}: malformed record (expected 'seconds<TAB>line')") from None
-                if not tab or t_s - t_s != 0:  # no TAB, or nan/inf
-                    raise UserError(f"{p}:{lineno}: malformed record (expected 'seconds<TAB>line')")
-                fast = clean and 0x09 not in field  # a raw TAB inside the line goes the careful way
-                if fast and 0x5C not in field:
-                    yield t_s, field, field.decode("ascii")
-                    continue
-                if fast and field[-4:] == _CR_B and field.count(0x5C) == 1:
-                    yield t_s, field[:-4] + b"\r", field.decode("ascii")
-                    continue
-                if not clean and field[-1:] == b"\r":
-                    field = field[:-1]  # a file edited into CRLF; a real CR is always escaped
-                raw = _unescape_bytes(field)
-                if raw is None:
-                    raise UserError(f"{p}:{lineno}: malformed record (bad escape or raw control byte)")
-                yield t_s, raw, field.decode("ascii")
-            if not block:
-                return
+        for data in record_blocks(f, first):
+            yield from block_records(p, data, lineno, on_comment)
+            lineno += data.count(b"\n") + (not data.endswith(b"\n"))
+
+
+def block_records(p: Path, data: bytes, lineno: int, on_comment) -> Iterator[tuple[float, bytes, str]]:
+    """The records of one block of whole lines, the first being line `lineno + 1` of the file."""
+    lines = data.split(b"\n")
+    if lines[-1] == b"":
+        lines.pop()
+    # One scan per block instead of one per line: a block of plain
+    # printable records (the usual case) skips the per-line checks.
+    clean = not _BAD_BLOCK.search(data)
+    for line in lines:
+        lineno += 1
+        t_text, tab, field = line.partition(b"\t")
+        try:
+            t_s = float(t_text)
+        except ValueError:
+            if line[:1] == b"#":
+                if on_comment is not None:
+                    on_comment(line[1:].decode("utf-8", "replace").strip())
+                continue
+            if not line.strip():
+                continue
+            raise UserError(f"{p}:{lineno}: malformed record (expected 'seconds<TAB>line')") from None
+        if not tab or t_s - t_s != 0:  # no TAB, or nan/inf
+            raise UserError(f"{p}:{lineno}: malformed record (expected 'seconds<TAB>line')")
+        fast = clean and 0x09 not in field  # a raw TAB inside the line goes the careful way
+        if fast and 0x5C not in field:
+            yield t_s, field, field.decode("ascii")
+            continue
+        if fast and field[-4:] == _CR_B and field.count(0x5C) == 1:
+            yield t_s, field[:-4] + b"\r", field.decode("ascii")
+            continue
+        if not clean and field[-1:] == b"\r":
+            field = field[:-1]  # a file edited into CRLF; a real CR is always escaped
+        raw = _unescape_bytes(field)
+        if raw is None:
+            raise UserError(f"{p}:{lineno}: malformed record (bad escape or raw control byte)")
+        yield t_s, raw, field.decode("ascii")
 
 
 def read_plain(path, rate_hz: float) -> Iterator[tuple[float, bytes, str]]:

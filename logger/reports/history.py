@@ -29,7 +29,7 @@ from scipy import stats
 from logger.checks import is_positive
 from logger.reports import plotstyle as ps
 from logger.errors import UserError
-from logger.run.writer import formula_safe
+from logger.run.rows import formula_safe
 from logger.run.load import load_runs, runs_table
 from logger.units import from_mm, to_mm
 

@@ -18,7 +18,6 @@ from __future__ import annotations
 import json
 import math
 import os
-import re
 import time
 from pathlib import Path
 
@@ -26,32 +25,12 @@ from logger.run.columns import (SAMPLES_COLUMNS, SAMPLES_FILE, SEATINGS_COLUMNS,
                                 SUMMARY_FILE)
 from logger.errors import UserError, cannot_write
 from logger.live.listener import Listener, Sample
+from logger.run.rows import csv_text, sample_head, sample_tail
 from logger.timestamps import iso_utc
 
 SAMPLE_COLUMNS = tuple(c.name for c in SAMPLES_COLUMNS)
 SEATING_COLUMNS = tuple(c.name for c in SEATINGS_COLUMNS)
 FLUSH_EVERY_S = 0.5
-
-
-# A signed reading as text ("-0.123 mm\x0d") is safe in a spreadsheet as it is.
-_PLAIN_NUMBER = re.compile(r'[+-][ \t]*[0-9.,]*[ \t]*(mm|inch|in|")?[ \t]*(\\x0d)?', re.IGNORECASE)
-
-
-def formula_safe(value: str) -> str:
-    """Free text that a spreadsheet will not run as a formula.
-
-    Text that a spreadsheet would run as a formula (starting with = + - @,
-    tab or CR) gets a leading apostrophe, the usual guard (the OWASP note on
-    CSV injection, from memory); a plain signed number is left alone.
-    """
-    if value[:1] in ("=", "+", "-", "@", "\t", "\r") and not _PLAIN_NUMBER.fullmatch(value):
-        return "'" + value
-    return value
-
-
-def csv_text(value: str) -> str:
-    """A free-text CSV field: quoted, and never a spreadsheet formula."""
-    return '"' + formula_safe(value).replace('"', '""') + '"'
 
 
 def _num(x, fmt="{:.6f}") -> str:
@@ -136,13 +115,7 @@ class RunWriter(Listener):
     def sample(self, sample: Sample) -> None:
         """One samples.csv row; `sample.text` is the line already escaped as in the recording."""
         t_s, t_wall, _, text, value_mm, _, state, seating = sample
-        if value_mm is None:  # a bad line: free text, guarded
-            row = f"{iso_utc(t_wall)},{t_s:.6f},{csv_text(text)},,{state},\n"
-        else:  # a reading: a number by construction, only quoted (decimal commas, inch marks)
-            s = "" if seating is None else seating
-            if '"' in text:
-                text = text.replace('"', '""')
-            row = f'{iso_utc(t_wall)},{t_s:.6f},"{text}",{value_mm:.6f},{state},{s}\n'
+        row = sample_head(iso_utc(t_wall), t_s) + sample_tail(text, value_mm, state, seating)
         rows = self._rows
         rows.append(row)
         if len(rows) >= 4096:
@@ -155,6 +128,11 @@ class RunWriter(Listener):
             self._samples.write(text)
         except (OSError, ValueError) as exc:  # ValueError: closed after an earlier failure
             self._fail(exc)
+
+    def sample_block(self, text: str) -> None:
+        """Many samples.csv rows at once, already formatted (the batch replay), after any rows still held."""
+        self._rows.append(text)
+        self._write_rows()
 
     def _fail(self, exc: Exception):
         """samples.csv cannot be written (disk full, read-only): close it at once, keep what is on disk."""
