@@ -155,7 +155,7 @@ class Decoder:
         """(value_mm, unit, why bad) for one line; the hot path of the pipeline."""
         hit = self._memo.get(raw)
         if hit is None:
-            hit = self._parse(raw)
+            hit = self.parse(raw)
             if len(self._memo) >= self.MEMO_SIZE:
                 self._memo.clear()
             self._memo[raw] = hit
@@ -169,7 +169,8 @@ class Decoder:
         value_mm, unit, bad = self.value(raw)
         return Reading(t_s, t_wall, raw, value_mm, unit, bad)
 
-    def _parse(self, raw: bytes) -> tuple[float | None, str | None, str]:
+    def parse(self, raw: bytes) -> tuple[float | None, str | None, str]:
+        """`value` without counting or remembering: the batch replay decodes each distinct line once."""
         if len(raw) < self.max_line:  # a line as long as the bound may have been cut: never a reading
             for _name, read in LINE_FORMATS:
                 hit = read(raw, self.default_unit)

@@ -1,0 +1,104 @@
+"""A block of recording lines decoded at once with numpy: the batch replay's first stage.
+
+The incremental reader (logger.formats.recording.block_records) looks at each
+record in turn; here a whole block of the common kind is taken apart with
+array operations: one TAB per line, a time of digits and at most one dot,
+only printable bytes.  Each distinct line is unescaped and decoded once by
+the very decoder the live path uses (an indicator repeats a few hundred
+lines), so the values cannot differ.  A block with anything else in it (a
+comment, an odd time, a bad escape, a line without its LF) is not decoded
+here: `decode_block` returns None and the caller gives that block to the
+incremental reader, which also raises its errors at the right line.
+
+Times: a time written as the recorder writes it (1 to 9 digits, a dot, 6
+digits) is the integer M of its digits over 10**6, which IEEE division rounds
+correctly, so it is the double `float()` gives; and with at most 15
+significant digits its text is exactly what `seconds_text` makes of that
+double (DBL_DIG), so samples.csv can reuse the recording's own bytes.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Callable
+
+import numpy as np
+import pandas as pd
+
+from logger.formats.recording import _BAD_BLOCK, _unescape_bytes
+
+_MAX_TIME = 16  # bytes of a time field decoded here; longer ones go the careful way
+_ZERO, _NINE, _DOT = 48, 57, 46
+
+
+@dataclass
+class DecodedBlock:
+    """The lines of one block: times, the recording's time text, and which distinct line each one is."""
+
+    t_s: np.ndarray  # float64 per line
+    time_text: np.ndarray  # uint8 (lines x width): the time as written, zero-padded
+    time_len: np.ndarray  # its length per line
+    time_reused: np.ndarray  # bool: time_text is exactly seconds_text(t_s)
+    codes: np.ndarray  # int64 per line: index into the distinct lines
+    texts: list[str]  # per distinct line: the escaped text (as in the recording and samples.csv)
+    values: list[float | None]  # per distinct line: value_mm, None for a bad line
+
+    def good(self) -> np.ndarray:
+        """Per line: True where the line is a reading."""
+        return np.array([v is not None for v in self.values], bool)[self.codes]
+
+    def values_mm(self) -> np.ndarray:
+        """Per line: value_mm, NaN for a bad line."""
+        return np.array([np.nan if v is None else v for v in self.values], float)[self.codes]
+
+
+def decode_block(data: bytes, parse: Callable[[bytes], tuple]) -> DecodedBlock | None:
+    """Decode a block of whole lines (each ending in LF), or None when it is not of the common kind."""
+    if not data.endswith(b"\n") or _BAD_BLOCK.search(data):
+        return None
+    arr = np.frombuffer(data, np.uint8)
+    ends = np.flatnonzero(arr == 10)
+    tabs = np.flatnonzero(arr == 9)
+    if len(tabs) != len(ends):
+        return None
+    starts = np.concatenate(([0], ends[:-1] + 1))
+    if not (np.all(tabs > starts) and np.all(tabs < ends)):  # one TAB in every line, after a time
+        return None
+    times = _times(arr, starts, tabs - starts)
+    if times is None:
+        return None
+    parts = data.replace(b"\t", b"\n").split(b"\n")  # time, field, time, field, ..., b""
+    codes, uniques = pd.factorize(np.array(parts[1:-1:2], dtype=object))
+    texts, values = [], []
+    for field in uniques.tolist():
+        raw = _unescape_bytes(field)
+        if raw is None:
+            return None  # a malformed escape: the incremental reader reports it at its line
+        texts.append(field.decode("ascii"))
+        values.append(parse(raw)[0])
+    t_s, text, length, reused = times
+    for i in np.flatnonzero(~reused).tolist():  # times written some other way: float(), as the reader does
+        t_s[i] = float(data[starts[i]:tabs[i]])
+    return DecodedBlock(t_s, text, length, reused, codes.astype(np.int64), texts, values)
+
+
+def _times(arr: np.ndarray, starts: np.ndarray, length: np.ndarray):
+    """(t_s, text matrix, length, reused) when every time is digits with at most one dot, else None."""
+    if length.max() > _MAX_TIME:
+        return None
+    width = int(length.max())
+    cols = np.arange(width)
+    inside = cols < length[:, None]
+    text = np.where(inside, arr[np.minimum(starts[:, None] + cols, len(arr) - 1)], 0).astype(np.uint8)
+    digit = (text >= _ZERO) & (text <= _NINE)
+    dot = text == _DOT
+    dots = dot.sum(axis=1)
+    if not np.all((digit | dot)[inside]) or np.any(dots > 1) or np.any(dots == length):
+        return None  # float() would read these some other way (or refuse them)
+    dot_at = text[np.arange(len(text)), np.maximum(length - 7, 0)] == _DOT
+    reused = (length >= 8) & (length <= 15) & (dots == 1) & dot_at & ((text[:, 0] != _ZERO) | (length == 8))
+    m = np.zeros(len(text), np.int64)
+    for k in range(width):
+        m = np.where(digit[:, k], m * 10 + (text[:, k].astype(np.int64) - _ZERO), m)
+    t_s = np.where(reused, m / 1e6, 0.0)
+    return t_s, text, length, reused

@@ -1,0 +1,56 @@
+"""The batch replay: a recording through the pipeline a block at a time, with the same run folder as line by line.
+
+`saglog replay` has nobody watching, so it need not tell anyone about each
+line: blocks of the common kind are decoded (logger.formats.batch_decode),
+detected (logger.analysis.batch_seating) and written (logger.run.block_rows)
+with array operations, and every other block (comments, gaps, odd lines)
+goes through `Pipeline.line` as in a capture.  Both feed the same decoder
+counts, detector and list of seatings, and the pipeline's `finish` analyses
+and writes the rest, so the run folder is byte-identical to the incremental
+replay's (tests/live/test_batch_replay.py).
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Callable
+
+from logger.analysis.batch_seating import BAD_CODE, detect_block
+from logger.formats.batch_decode import decode_block
+from logger.formats.recording import block_records, record_blocks
+from logger.live.pipeline import Pipeline
+from logger.run.block_rows import block_rows
+from logger.run.writer import RunWriter
+
+BLOCK_BYTES = 1 << 22  # about 160,000 lines of a 100 Hz recording: a few tens of MB at most in arrays
+
+
+def feed_recording(p: Path, f, first: bytes | None, lineno: int, pipeline: Pipeline, writer: RunWriter,
+                   on_comment: Callable[[str], None], block_bytes: int = BLOCK_BYTES) -> None:
+    """Every record of an open recording into `pipeline`, whose only listener is `writer`."""
+    with f:
+        for data in record_blocks(f, first, block_bytes):
+            block = decode_block(data, pipeline.decoder.parse)
+            if block is None:
+                for t_s, raw, text in block_records(p, data, lineno, on_comment):
+                    pipeline.line(t_s, raw, text)
+            else:
+                _feed_block(block, pipeline, writer)
+            lineno += data.count(b"\n") + (not data.endswith(b"\n"))
+
+
+def _feed_block(block, pipeline: Pipeline, writer: RunWriter) -> None:
+    """One decoded block: counts, detection, rows; what `Pipeline.line` does for each of its lines."""
+    good = block.good()
+    n_good = int(good.sum())
+    decoder = pipeline.decoder
+    decoder.good += n_good
+    decoder.bad += len(good) - n_good
+    states = (~good).astype("int8") * BAD_CODE
+    seats = (good * 0 - 1).astype("int64")
+    if n_good:
+        states[good], seats[good] = detect_block(pipeline.detector, block.t_s[good], block.values_mm()[good],
+                                                 pipeline.seatings)
+    pipeline.last_t_s = float(block.t_s[-1])
+    pipeline._state = pipeline.detector.state
+    writer.sample_block(block_rows(block, pipeline.start_wall + block.t_s, states, seats))
