@@ -12,9 +12,11 @@ start, end or move a seating, goes through `SeatingDetector.feed` itself.
 
 from __future__ import annotations
 
+from itertools import islice
+
 import numpy as np
 
-from logger.analysis.seating import _COMPACT_AT, SEATED, Seating, SeatingDetector, State
+from logger.analysis.seating import _COMPACT_AT, REPEAT_MEMORY_S, SEATED, Seating, SeatingDetector, State
 
 STATES = (State.LIFTED, State.SETTLING, State.SEATED, State.BAD)  # samples' state codes, in this order
 _CODE = {s: i for i, s in enumerate(STATES)}
@@ -36,6 +38,8 @@ def detect_block(det: SeatingDetector, t_s: np.ndarray, v_mm: np.ndarray,
         elif det._resting and det._t:
             j = _resting(det, t_s, v_mm, i)
             states[i:j] = _CODE[det.state]
+        elif det._t and det._ct:
+            j = _holding(det, t_s, v_mm, i, states)
         else:
             j = i
         if j > i:
@@ -56,22 +60,65 @@ def _seated(det: SeatingDetector, tl: list, vl: list, i: int) -> int:
     """Readings from i that stay within lift of the running centre: kept, the centre run on; returns where it ends."""
     c, lift = det._centre, det._lift
     j = i
-    for x in vl[i:]:
+    for x in islice(vl, i, None):
         d = x - c
         if d < -lift or d > lift:
             break
         c += d * 0.05
         j += 1
     det._centre = c
-    k = i
-    while k < j:  # appended as one by one: compacted at the same lengths
-        take = min(_COMPACT_AT + 1 - len(det._t), j - k)
-        det._t.extend(tl[k:k + take])
-        det._v.extend(vl[k:k + take])
+    _extend(det, tl[i:j], vl[i:j])
+    return j
+
+
+def _extend(det: SeatingDetector, ts: list, vs: list) -> None:
+    """Samples appended as one by one would be: compacted at the same lengths."""
+    k = 0
+    while k < len(ts):
+        take = min(_COMPACT_AT + 1 - len(det._t), len(ts) - k)
+        det._t.extend(ts[k:k + take])
+        det._v.extend(vs[k:k + take])
         k += take
         if len(det._t) > _COMPACT_AT:
             det._compact()
-    return j
+
+
+def _holding(det: SeatingDetector, t_s: np.ndarray, v_mm: np.ndarray, i: int, states: np.ndarray) -> int:
+    """Readings from i that hold within the band of the mean since the anchor, on a stream that repeats values.
+
+    Taken in bulk up to (not including) the first one that leaves the band,
+    reaches the settle time, would reset or fire the rough-rest watch, or
+    comes after a second without repeats: the detector decides those.
+    """
+    s = det.s
+    first = float(v_mm[i])
+    if not (-det._band <= first - det._sum / len(det._v) <= det._band) or abs(first - det._cv[0]) > det._lift / 2:
+        return i  # moving: a restart, the detector's own
+    end = min(len(v_mm), i + 64)  # a hold lasts the settle time: tens of readings
+    t, v = t_s[i:end], v_mm[i:end]
+    rep = np.concatenate(([det._last_v], v[:-1])) == v
+    last_rep = np.maximum.accumulate(np.where(rep, t, det._last_repeat_t))
+    sums = np.cumsum(np.concatenate(([det._sum], v)))
+    mean = sums[:-1] / (len(det._v) + np.arange(len(v)))
+    d = v - mean
+    most_out = np.minimum.accumulate(np.minimum(det.sign * v, det._most_out))
+    ok = ((d >= -det._band) & (d <= det._band) & (t - det._t[0] < s.settle_s) & (t - last_rep <= REPEAT_MEMORY_S)
+          & (np.abs(v - det._cv[0]) <= det._lift / 2)
+          & ~((t - det._ct[0] >= 3 * s.settle_s) & (len(det._ct) + np.arange(1, len(v) + 1) >= 3)))
+    n = int(np.argmin(ok)) if not ok.all() else len(ok)
+    if n == 0:
+        return i
+    oriented = det.sign * v[:n]
+    code = np.where(oriented - most_out[:n] >= det._lift, _CODE[State.SETTLING], _CODE[State.LIFTED])
+    states[i:i + n] = code
+    ts, vs = t[:n].tolist(), v[:n].tolist()
+    _extend(det, ts, vs)
+    det._sum = float(sums[n])
+    det._most_out = float(most_out[n - 1])
+    det.state = STATES[int(code[-1])]
+    det._ct.extend(ts)
+    det._cv.extend(vs)
+    return i + n
 
 
 def _resting(det: SeatingDetector, t_s: np.ndarray, v_mm: np.ndarray, i: int) -> int:

@@ -26,10 +26,10 @@ BLOCK_BYTES = 1 << 22  # about 160,000 lines of a 100 Hz recording: a few tens o
 
 
 def feed_recording(p: Path, f, first: bytes | None, lineno: int, pipeline: Pipeline, writer: RunWriter,
-                   on_comment: Callable[[str], None], block_bytes: int = BLOCK_BYTES) -> None:
+                   on_comment: Callable[[str], None]) -> None:
     """Every record of an open recording into `pipeline`, whose only listener is `writer`."""
     with f:
-        for data in record_blocks(f, first, block_bytes):
+        for data in record_blocks(f, first, BLOCK_BYTES):
             block = decode_block(data, pipeline.decoder.parse)
             if block is None:
                 for t_s, raw, text in block_records(p, data, lineno, on_comment):

@@ -1,0 +1,145 @@
+"""The batch replay gives the very run folder the incremental pipeline gives (byte for byte).
+
+The incremental pipeline (Pipeline.line per record) is the reference: the
+batch path (logger.live.batch) must agree with it on every file of the run
+folder, on the shipped sample streams, on the fault suite's messy streams
+(baud-rate noise, a unit switch, gaps, a file edited into CRLF, a bad record
+half-way) and on hypothesis-drawn streams.  Small blocks put block
+boundaries everywhere, so seatings, holds and rests are cut across them.
+"""
+
+from __future__ import annotations
+
+import random
+from pathlib import Path
+
+import pytest
+from hypothesis import HealthCheck, given, settings, strategies as st
+
+import logger.live.batch as batch
+from benchmarks.feeder import session
+from logger.errors import UserError
+from logger.formats.recording import RecWriter, gap_comment
+from logger.live.replay import replay_file
+from tests.helpers.paths import ROOT
+from tests.live.test_faults import fresh_settings, timed, write_rec
+
+FILES = ("samples.csv", "seatings.csv", "summary.json", "settings.json")
+
+
+def both(rec: Path, out: Path, profile, **over) -> dict:
+    """Replay `rec` line by line and in batches; the files of the two run folders, by name."""
+    got = {}
+    for mode in (False, True):
+        folder = out / f"batch-{mode}"
+        error = None
+        try:
+            replay_file(rec, profile, fresh_settings(profile, **over), folder, batch=mode, force=True)
+        except UserError as exc:
+            error = str(exc)
+        got[mode] = {name: (folder / name).read_bytes() for name in FILES if (folder / name).exists()}, error
+    return got
+
+
+def assert_same(got: dict) -> None:
+    (inc, inc_error), (bat, bat_error) = got[False], got[True]
+    assert bat_error == inc_error
+    assert inc.keys() == bat.keys()
+    for name in inc:
+        assert bat[name] == inc[name], name
+
+
+@pytest.fixture(params=[1 << 22, 700, 97], ids=["big-blocks", "small-blocks", "tiny-blocks"])
+def blocks(request, monkeypatch):
+    monkeypatch.setattr(batch, "BLOCK_BYTES", request.param)
+    return request.param
+
+
+@pytest.mark.parametrize("rec", sorted((ROOT / "sample_streams").glob("*.rec")), ids=lambda p: p.stem)
+def test_every_sample_stream(rec, blocks, tmp_path, profile):
+    assert_same(both(rec, tmp_path, profile))
+
+
+def test_a_long_session_with_rests_holds_and_compaction(blocks, tmp_path, profile, monkeypatch):
+    # 40 s holds at 1 kHz pass the detector's 20,000-sample compaction, cut across blocks
+    stream = session(3, rate_hz=1000, seated_s=40, lifted_s=2, seed=3)
+    write_rec(tmp_path / "long.rec", timed(stream.lines, 1000))
+    assert_same(both(tmp_path / "long.rec", tmp_path, profile))
+
+
+def messy_streams(tmp_path: Path) -> list[Path]:
+    """The fault suite's kinds of trouble, each in a recording of its own."""
+    stream = session(6, rate_hz=100, seed=5)
+    lines = timed(stream.lines)
+    rng = random.Random(7)
+    noisy = []
+    for t_s, raw in lines:
+        noisy.append((t_s, raw))
+        if rng.random() < 0.05:  # a wrong baud rate: high bytes, NUL, 0xFF
+            noisy.append((t_s, bytes(rng.choice([0x00, 0xFF, *range(0x80, 0xFF)]) for _ in range(rng.randint(1, 30)))))
+    inch = [(t, b"%+.5f in\r" % (float(r.split()[0]) / 25.4) if 600 < i < 1500 else r) for i, (t, r) in enumerate(lines)]
+    out = []
+    for name, recs in (("noisy", noisy), ("inch", inch)):
+        write_rec(tmp_path / f"{name}.rec", recs)
+        out.append(tmp_path / f"{name}.rec")
+    w = RecWriter(tmp_path / "gaps.rec", 1_780_000_000.0, {"source": "invented test stream"})
+    for i, (t_s, raw) in enumerate(lines):
+        if i in (500, 1300):
+            w.comment(gap_comment(t_s - 0.005, t_s))
+        w.write(t_s, raw)
+    w.close()
+    out.append(tmp_path / "gaps.rec")
+    text = (tmp_path / "noisy.rec").read_bytes()
+    (tmp_path / "crlf.rec").write_bytes(text.replace(b"\n", b"\r\n"))
+    records = text.split(b"\n")
+    records[len(records) // 2] = b"12.5 no tab here"
+    (tmp_path / "broken.rec").write_bytes(b"\n".join(records))
+    odd = text.replace(b"0000\t", b"\t").replace(b"5.0", b"5.00")  # times written otherwise, still numbers
+    (tmp_path / "odd-times.rec").write_bytes(odd)
+    return out + [tmp_path / "crlf.rec", tmp_path / "broken.rec", tmp_path / "odd-times.rec"]
+
+
+def test_the_fault_suites_messy_streams(blocks, tmp_path, profile):
+    for rec in messy_streams(tmp_path):
+        got = both(rec, tmp_path / rec.stem, profile)
+        assert_same(got)
+        if rec.stem == "broken":  # the malformed record is reported, and what came before it kept
+            assert "malformed record" in got[True][1] and got[True][0]["samples.csv"].count(b"\n") > 100
+
+
+_LINE = st.one_of(
+    st.floats(-3, 3).map(lambda x: b"%+.3f mm\r" % x),
+    st.floats(-0.1, 0.1).map(lambda x: b"%+.5fin" % x),
+    st.sampled_from([b"", b"\x00\xff", b"-0,341 MM", b'1.5"', b"=HYPERLINK()", b"F:A:24:1234AB", b"a\\b"]),
+)
+
+
+@st.composite
+def streams(draw):
+    """Levels held for a while with a little noise, lifts between, odd lines here and there."""
+    t, recs = 0.0, []
+    for _ in range(draw(st.integers(1, 8))):
+        level = draw(st.floats(-2, 0))
+        noise = draw(st.sampled_from([0.0, 0.0005, 0.002, 0.03]))
+        rate = draw(st.sampled_from([10.0, 50.0, 200.0]))
+        rng = random.Random(draw(st.integers(0, 99)))
+        for _ in range(draw(st.integers(1, 300))):
+            t += 1 / rate * draw(st.sampled_from([1, 1, 1, 3])) if rng.random() < 0.1 else 1 / rate
+            if rng.random() < 0.03:
+                recs.append((t, draw(_LINE)))
+            else:
+                recs.append((t, b"%+.3f mm\r" % (level + rng.gauss(0, noise))))
+    return recs
+
+
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])  # the profile is read-only
+@given(recs=streams(), block=st.sampled_from([64, 300, 1 << 22]))
+def test_batch_equals_incremental_on_drawn_streams(recs, block, tmp_path_factory, profile):
+    tmp = tmp_path_factory.mktemp("drawn")
+    write_rec(tmp / "drawn.rec", recs)
+    old = batch.BLOCK_BYTES
+    batch.BLOCK_BYTES = block
+    try:
+        assert_same(both(tmp / "drawn.rec", tmp, profile, settle=0.2))
+    finally:
+        batch.BLOCK_BYTES = old
