@@ -97,7 +97,8 @@ def _holding(det: SeatingDetector, t_s: np.ndarray, v_mm: np.ndarray, i: int, st
     end = min(len(v_mm), i + 64)  # a hold lasts the settle time: tens of readings
     t, v = t_s[i:end], v_mm[i:end]
     rep = np.concatenate(([det._last_v], v[:-1])) == v
-    last_rep = np.maximum.accumulate(np.where(rep, t, det._last_repeat_t))
+    at = np.maximum.accumulate(np.where(rep, np.arange(len(v)), -1))  # the latest repeat so far (times may go back)
+    last_rep = np.where(at >= 0, t[at], det._last_repeat_t)
     sums = np.cumsum(np.concatenate(([det._sum], v)))
     mean = sums[:-1] / (len(det._v) + np.arange(len(v)))
     d = v - mean
