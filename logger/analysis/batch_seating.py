@@ -12,8 +12,6 @@ start, end or move a seating, goes through `SeatingDetector.feed` itself.
 
 from __future__ import annotations
 
-from itertools import islice
-
 import numpy as np
 
 from logger.analysis.seating import _COMPACT_AT, REPEAT_MEMORY_S, SEATED, Seating, SeatingDetector, State
@@ -35,15 +33,17 @@ def detect_block(det: SeatingDetector, t_s: np.ndarray, v_mm: np.ndarray,
         if det.state == SEATED:
             j = _seated(det, tl, vl, i)
             states[i:j], seats[i:j] = _CODE[SEATED], det.current_index
+            _repeats(det, t_s, v_mm, i, j)
         elif det._resting and det._t:
             j = _resting(det, t_s, v_mm, i)
             states[i:j] = _CODE[det.state]
+            _repeats(det, t_s, v_mm, i, j)
         elif det._t and det._ct:
-            j = _holding(det, t_s, v_mm, i, states)
+            j = _holding(det, tl, vl, i, states)
+            if j == i:
+                j = _moving(det, tl, vl, i, states)
         else:
             j = i
-        if j > i:
-            _repeats(det, t_s, v_mm, i, j)
         if j < n:  # a reading that may decide: the detector itself
             done = det.feed(tl[j], vl[j])
             if done is not None:
@@ -57,15 +57,26 @@ def detect_block(det: SeatingDetector, t_s: np.ndarray, v_mm: np.ndarray,
 
 
 def _seated(det: SeatingDetector, tl: list, vl: list, i: int) -> int:
-    """Readings from i that stay within lift of the running centre: kept, the centre run on; returns where it ends."""
+    """Readings from i that stay within lift of the running centre: kept, the centre run on; returns where it ends.
+
+    The centre is the detector's own recurrence, run in this tight loop over
+    chunks of the block (a seating's length decides where it ends).
+    """
     c, lift = det._centre, det._lift
     j = i
-    for x in islice(vl, i, None):
-        d = x - c
-        if d < -lift or d > lift:
-            break
-        c += d * 0.05
-        j += 1
+    step = 256
+    while j < len(vl):
+        chunk = vl[j:j + step]
+        for x in chunk:
+            d = x - c
+            if d < -lift or d > lift:
+                break
+            c += d * 0.05
+            j += 1
+        else:
+            step *= 4
+            continue
+        break
     det._centre = c
     _extend(det, tl[i:j], vl[i:j])
     return j
@@ -83,43 +94,86 @@ def _extend(det: SeatingDetector, ts: list, vs: list) -> None:
             det._compact()
 
 
-def _holding(det: SeatingDetector, t_s: np.ndarray, v_mm: np.ndarray, i: int, states: np.ndarray) -> int:
+def _holding(det: SeatingDetector, tl: list, vl: list, i: int, states: np.ndarray) -> int:
     """Readings from i that hold within the band of the mean since the anchor, on a stream that repeats values.
 
-    Taken in bulk up to (not including) the first one that leaves the band,
+    Taken here up to (not including) the first one that leaves the band,
     reaches the settle time, would reset or fire the rough-rest watch, or
-    comes after a second without repeats: the detector decides those.
+    comes more than REPEAT_MEMORY_S after the last repeat: the detector
+    decides those.  The same sums and comparisons as `SeatingDetector.feed`.
     """
-    s = det.s
-    first = float(v_mm[i])
-    if not (-det._band <= first - det._sum / len(det._v) <= det._band) or abs(first - det._cv[0]) > det._lift / 2:
-        return i  # moving: a restart, the detector's own
-    end = min(len(v_mm), i + 64)  # a hold lasts the settle time: tens of readings
-    t, v = t_s[i:end], v_mm[i:end]
-    rep = np.concatenate(([det._last_v], v[:-1])) == v
-    at = np.maximum.accumulate(np.where(rep, np.arange(len(v)), -1))  # the latest repeat so far (times may go back)
-    last_rep = np.where(at >= 0, t[at], det._last_repeat_t)
-    sums = np.cumsum(np.concatenate(([det._sum], v)))
-    mean = sums[:-1] / (len(det._v) + np.arange(len(v)))
-    d = v - mean
-    most_out = np.minimum.accumulate(np.minimum(det.sign * v, det._most_out))
-    ok = ((d >= -det._band) & (d <= det._band) & (t - det._t[0] < s.settle_s) & (t - last_rep <= REPEAT_MEMORY_S)
-          & (np.abs(v - det._cv[0]) <= det._lift / 2)
-          & ~((t - det._ct[0] >= 3 * s.settle_s) & (len(det._ct) + np.arange(1, len(v) + 1) >= 3)))
-    n = int(np.argmin(ok)) if not ok.all() else len(ok)
-    if n == 0:
-        return i
-    oriented = det.sign * v[:n]
-    code = np.where(oriented - most_out[:n] >= det._lift, _CODE[State.SETTLING], _CODE[State.LIFTED])
-    states[i:i + n] = code
-    ts, vs = t[:n].tolist(), v[:n].tolist()
-    _extend(det, ts, vs)
-    det._sum = float(sums[n])
-    det._most_out = float(most_out[n - 1])
-    det.state = STATES[int(code[-1])]
-    det._ct.extend(ts)
-    det._cv.extend(vs)
-    return i + n
+    band = det._band
+    d = vl[i] - det._sum / len(det._v)
+    if d < -band or d > band:
+        return i  # it moved
+    half_lift, lift, sign, settle_s = det._lift / 2, det._lift, det.sign, det.s.settle_s
+    total, count, n_coarse = det._sum, len(det._v), len(det._ct)
+    t0, ct0, cv0 = det._t[0], det._ct[0], det._cv[0]
+    most, last_v, last_rep = det._most_out, det._last_v, det._last_repeat_t
+    settling, lifted = _CODE[State.SETTLING], _CODE[State.LIFTED]
+    codes = []
+    for t, x in zip(tl[i:i + 64], vl[i:i + 64]):  # a hold is tens of readings; a longer one comes back here
+        rep = t if x == last_v else last_rep
+        d = x - total / count
+        if (d < -band or d > band or t - t0 >= settle_s or t - rep > REPEAT_MEMORY_S or abs(x - cv0) > half_lift
+                or (t - ct0 >= 3 * settle_s and n_coarse + 1 >= 3)):
+            break
+        last_v, last_rep = x, rep
+        oriented = sign * x
+        if oriented < most:
+            most = oriented
+        total += x
+        count += 1
+        n_coarse += 1
+        codes.append(settling if oriented - most >= lift else lifted)
+    j = i + len(codes)
+    if j > i:
+        states[i:j] = codes
+        ts, vs = tl[i:j], vl[i:j]
+        _extend(det, ts, vs)
+        det._ct.extend(ts)
+        det._cv.extend(vs)
+        det._sum, det._most_out, det.state = total, most, STATES[codes[-1]]
+        det._last_v, det._last_repeat_t, det._last_t = last_v, last_rep, tl[j - 1]
+    return j
+
+
+def _moving(det: SeatingDetector, tl: list, vl: list, i: int, states: np.ndarray) -> int:
+    """Readings from i that each leave the band of the one before (the spindle moving): each a new anchor.
+
+    Up to (not including) one that holds, comes more than REPEAT_MEMORY_S
+    after the last repeat, or fires the rough-rest watch; the same steps as
+    `SeatingDetector.feed` and its `_restart` and `_coarse`.
+    """
+    band, half_lift, settle3_s, sign = det._band, det._lift / 2, 3 * det.s.settle_s, det.sign
+    anchor = det._sum / len(det._v)
+    ct, cv = det._ct, det._cv
+    most, last_v, last_rep = det._most_out, det._last_v, det._last_repeat_t
+    j = i
+    for t, x in zip(tl[i:i + 64], vl[i:i + 64]):
+        rep = t if x == last_v else last_rep
+        d = x - anchor
+        if -band <= d <= band or t - rep > REPEAT_MEMORY_S:
+            break
+        if ct and abs(x - cv[0]) <= half_lift:
+            if t - ct[0] >= settle3_s and len(ct) + 1 >= 3:
+                break
+            ct.append(t)
+            cv.append(x)
+        else:
+            ct, cv = [t], [x]
+        oriented = sign * x
+        if oriented < most:
+            most = oriented
+        last_v, last_rep, anchor = x, rep, x
+        j += 1
+    if j > i:
+        states[i:j] = _CODE[State.LIFTED]
+        det._t, det._v, det._sum = [tl[j - 1]], [vl[j - 1]], vl[j - 1]
+        det._ct, det._cv = ct, cv
+        det.state, det._resting, det.current_index = State.LIFTED, False, None
+        det._most_out, det._last_v, det._last_repeat_t, det._last_t = most, last_v, last_rep, tl[j - 1]
+    return j
 
 
 def _resting(det: SeatingDetector, t_s: np.ndarray, v_mm: np.ndarray, i: int) -> int:
@@ -142,6 +196,8 @@ def _resting(det: SeatingDetector, t_s: np.ndarray, v_mm: np.ndarray, i: int) ->
 
 def _repeats(det: SeatingDetector, t_s: np.ndarray, v_mm: np.ndarray, i: int, j: int) -> None:
     """What every reading i..j-1 does to the detector's memory of repeats and of the last reading."""
+    if j <= i:
+        return
     prev = np.concatenate(([det._last_v], v_mm[i:j - 1]))
     rep = np.flatnonzero(v_mm[i:j] == prev)
     if len(rep):
