@@ -25,10 +25,11 @@ from typing import Callable
 import numpy as np
 import pandas as pd
 
-from logger.formats.recording import _BAD_BLOCK, _unescape_bytes
+from logger.formats.recording import _unescape_bytes
 
 _MAX_TIME = 16  # bytes of a time field decoded here; longer ones go the careful way
 _ZERO, _NINE, _DOT = 48, 57, 46
+_PRINTABLE = bytes(range(0x20, 0x7F)) + b"\t\n"  # what a record may hold besides its TAB and LF
 
 
 @dataclass
@@ -36,8 +37,9 @@ class DecodedBlock:
     """The lines of one block: times, the recording's time text, and which distinct line each one is."""
 
     t_s: np.ndarray  # float64 per line
-    time_text: np.ndarray  # uint8 (lines x width): the time as written, zero-padded
-    time_len: np.ndarray  # its length per line
+    data: np.ndarray  # uint8: the block's bytes
+    starts: np.ndarray  # where each line starts in it (its time)
+    time_len: np.ndarray  # the length of each line's time
     time_reused: np.ndarray  # bool: time_text is exactly seconds_text(t_s)
     codes: np.ndarray  # int64 per line: index into the distinct lines
     texts: list[str]  # per distinct line: the escaped text (as in the recording and samples.csv)
@@ -54,7 +56,7 @@ class DecodedBlock:
 
 def decode_block(data: bytes, parse: Callable[[bytes], tuple]) -> DecodedBlock | None:
     """Decode a block of whole lines (each ending in LF), or None when it is not of the common kind."""
-    if not data.endswith(b"\n") or _BAD_BLOCK.search(data):
+    if not data.endswith(b"\n") or data.translate(None, _PRINTABLE):  # any byte left is not printable
         return None
     arr = np.frombuffer(data, np.uint8)
     ends = np.flatnonzero(arr == 10)
@@ -76,29 +78,29 @@ def decode_block(data: bytes, parse: Callable[[bytes], tuple]) -> DecodedBlock |
             return None  # a malformed escape: the incremental reader reports it at its line
         texts.append(field.decode("ascii"))
         values.append(parse(raw)[0])
-    t_s, text, length, reused = times
+    t_s, reused = times
     for i in np.flatnonzero(~reused).tolist():  # times written some other way: float(), as the reader does
         t_s[i] = float(data[starts[i]:tabs[i]])
-    return DecodedBlock(t_s, text, length, reused, codes.astype(np.int64), texts, values)
+    return DecodedBlock(t_s, arr, starts, tabs - starts, reused, codes.astype(np.int64), texts, values)
 
 
 def _times(arr: np.ndarray, starts: np.ndarray, length: np.ndarray):
-    """(t_s, text matrix, length, reused) when every time is digits with at most one dot, else None."""
-    if length.max() > _MAX_TIME:
-        return None
-    width = int(length.max())
-    cols = np.arange(width)
-    inside = cols < length[:, None]
-    text = np.where(inside, arr[np.minimum(starts[:, None] + cols, len(arr) - 1)], 0).astype(np.uint8)
-    digit = (text >= _ZERO) & (text <= _NINE)
-    dot = text == _DOT
-    dots = dot.sum(axis=1)
-    if not np.all((digit | dot)[inside]) or np.any(dots > 1) or np.any(dots == length):
-        return None  # float() would read these some other way (or refuse them)
-    dot_at = text[np.arange(len(text)), np.maximum(length - 7, 0)] == _DOT
-    reused = (length >= 8) & (length <= 15) & (dots == 1) & dot_at & ((text[:, 0] != _ZERO) | (length == 8))
-    m = np.zeros(len(text), np.int64)
-    for k in range(width):
-        m = np.where(digit[:, k], m * 10 + (text[:, k].astype(np.int64) - _ZERO), m)
-    t_s = np.where(reused, m / 1e6, 0.0)
-    return t_s, text, length, reused
+    """(t_s, reused) when every time is digits with at most one dot, else None; by groups of equal length."""
+    t_s = np.zeros(len(starts))
+    reused = np.zeros(len(starts), bool)
+    for width in np.unique(length).tolist():
+        if width > _MAX_TIME:
+            return None
+        rows = np.flatnonzero(length == width)
+        text = arr[starts[rows, None] + np.arange(width)]
+        digit = (text >= _ZERO) & (text <= _NINE)
+        dots = width - digit.sum(axis=1)
+        if np.any(dots > 1) or np.any((text != _DOT) & ~digit) or width == 1 and np.any(dots):
+            return None  # float() would read these some other way (or refuse them)
+        if 8 <= width <= 15:  # 1 to 9 digits, the dot, 6 digits: the recorder's own form
+            ok = (text[:, width - 7] == _DOT) & ((text[:, 0] != _ZERO) | (width == 8))
+            cols = [k for k in range(width) if k != width - 7]
+            m = (text[:, cols].astype(np.int64) - _ZERO) @ (10 ** np.arange(width - 2, -1, -1, dtype=np.int64))
+            t_s[rows] = np.where(ok, m / 1e6, 0.0)
+            reused[rows] = ok
+    return t_s, reused

@@ -22,7 +22,7 @@ from logger.timestamps import IsoClock
 _ISO = 27  # len("2025-01-06T09:00:00.000000Z")
 
 
-def block_rows(block: DecodedBlock, t_wall: np.ndarray, states: np.ndarray, seats: np.ndarray) -> str:
+def block_rows(block: DecodedBlock, t_wall: np.ndarray, states: np.ndarray, seats: np.ndarray) -> bytes:
     """The samples.csv rows of a decoded block, given each line's state code and seating (-1: none)."""
     n = len(t_wall)
     tails, tail_len, tail_code = _tails(block, states, seats)
@@ -34,7 +34,7 @@ def block_rows(block: DecodedBlock, t_wall: np.ndarray, states: np.ndarray, seat
         rows = np.flatnonzero(head_len == h)
         out[rows, h:h + tails.shape[1]] = tails[tail_code[rows]]
     keep = np.arange(width) < (head_len + tail_len[tail_code])[:, None]
-    return out[keep].tobytes().decode("ascii")
+    return out[keep].tobytes()
 
 
 def _tails(block: DecodedBlock, states: np.ndarray, seats: np.ndarray):
@@ -55,15 +55,15 @@ def _heads(block: DecodedBlock, t_wall: np.ndarray):
     iso = IsoClock.many(t_wall)
     n = len(t_wall)
     reused = block.time_reused
-    width = _ISO + 2 + max(block.time_text.shape[1], 0)
+    width = _ISO + 2 + int(block.time_len.max())
     heads = np.zeros((n, width), np.uint8)
     heads[:, :_ISO] = iso
     heads[:, _ISO] = ord(",")
     length = np.where(reused, block.time_len, 0) + _ISO + 2
-    if reused.any():
-        heads[:, _ISO + 1:_ISO + 1 + block.time_text.shape[1]] = np.where(reused[:, None], block.time_text, 0)
-        rows = np.flatnonzero(reused)
-        heads[rows, _ISO + 1 + block.time_len[rows]] = ord(",")
+    for size in np.unique(block.time_len[reused]).tolist():  # the recording's own time text, by length
+        rows = np.flatnonzero(reused & (block.time_len == size))
+        heads[rows, _ISO + 1:_ISO + 1 + size] = block.data[block.starts[rows, None] + np.arange(size)]
+        heads[rows, _ISO + 1 + size] = ord(",")
     others = np.flatnonzero(~reused)
     if len(others):  # the rare times the recorder did not write: formatted by sample_head itself
         texts = [sample_head("", t)[1:] for t in block.t_s[others].tolist()]

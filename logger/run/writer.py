@@ -129,10 +129,14 @@ class RunWriter(Listener):
         except (OSError, ValueError) as exc:  # ValueError: closed after an earlier failure
             self._fail(exc)
 
-    def sample_block(self, text: str) -> None:
-        """Many samples.csv rows at once, already formatted (the batch replay), after any rows still held."""
-        self._rows.append(text)
+    def sample_block(self, rows: bytes) -> None:
+        """Many samples.csv rows at once, already formatted as ASCII (the batch replay), after any rows still held."""
         self._write_rows()
+        try:
+            self._samples.flush()  # the text layer's buffer first, so the bytes follow it
+            self._samples.buffer.write(rows)
+        except (OSError, ValueError) as exc:
+            self._fail(exc)
 
     def _fail(self, exc: Exception):
         """samples.csv cannot be written (disk full, read-only): close it at once, keep what is on disk."""
