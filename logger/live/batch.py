@@ -22,7 +22,7 @@ from logger.live.pipeline import Pipeline
 from logger.run.block_rows import block_rows
 from logger.run.writer import RunWriter
 
-BLOCK_BYTES = 1 << 22  # about 160,000 lines of a 100 Hz recording: a few tens of MB at most in arrays
+BLOCK_BYTES = 1 << 21  # about 160,000 lines of a 100 Hz recording: a few tens of MB at most in arrays
 
 
 def feed_recording(p: Path, f, first: bytes | None, lineno: int, pipeline: Pipeline, writer: RunWriter,
