@@ -57,9 +57,16 @@ def _read_json(path: Path) -> dict:
     return data
 
 
-def _read_table(path: Path, columns: tuple[Column, ...]) -> pd.DataFrame:
-    """Read one CSV of the run folder into a typed DataFrame (all listed columns required)."""
-    dtype = {c.name: ("float64" if c.kind in ("float", "int") else str) for c in columns}
+def _read_table(path: Path, columns: tuple[Column, ...], categories: tuple[str, ...] = ()) -> pd.DataFrame:
+    """Read one CSV of the run folder into a typed DataFrame (all listed columns required).
+
+    `categories`: text columns that repeat a few values over many rows
+    (samples.csv's `raw` and `state`), kept as pandas categoricals of the
+    text: a fraction of the memory.  Times are read as bytes
+    and parsed once, in one numpy conversion when they are written as the
+    writer writes them (logger.timestamps).
+    """
+    dtype = {c.name: ("float64" if c.kind in ("float", "int") else "S27" if c.kind == "time" else str) for c in columns}
     try:
         df = pd.read_csv(path, dtype=dtype, keep_default_na=False, na_values=[""], engine="c")
     except FileNotFoundError:
@@ -72,24 +79,53 @@ def _read_table(path: Path, columns: tuple[Column, ...]) -> pd.DataFrame:
     if missing:
         raise UserError(f"{path}: missing column(s) {', '.join(missing)}")
     for c in columns:
-        col = df[c.name]
         try:
-            if c.kind == "int":
-                if col.isna().any():
-                    raise ValueError("empty cell")
-                df[c.name] = col.astype("int64")
-            elif c.kind == "time":
-                df[c.name] = pd.to_datetime(col, utc=True, format="ISO8601")
-            elif c.kind == "bool":
-                df[c.name] = _parse_bool(col)
-            elif c.kind == "text":
-                col = col.fillna("")
-                if col.str.startswith("'").any():
-                    col = col.str.replace(_FORMULA_GUARD, "", n=1, regex=True)
-                df[c.name] = col
+            col = df[c.name]
+            df[c.name] = _typed(col.astype("category") if c.name in categories else col, c)
         except (ValueError, TypeError) as exc:
             raise UserError(f"{path}: column {c.name}: {' '.join(str(exc).split())}") from None
     return df
+
+
+def _typed(col: pd.Series, c: Column) -> pd.Series:
+    """One column as its documented kind."""
+    if c.kind == "int":
+        if col.isna().any():
+            raise ValueError("empty cell")
+        return col.astype("int64")
+    if c.kind == "time":
+        return _times(col)
+    if c.kind == "bool":
+        return _parse_bool(col)
+    if c.kind != "text":
+        return col
+    if isinstance(col.dtype, pd.CategoricalDtype):  # the same rules, once per distinct value
+        if col.isna().any():
+            col = col.cat.add_categories([""]).fillna("") if "" not in col.cat.categories else col.fillna("")
+        return col.cat.rename_categories(lambda x: _unguard(pd.Series([x]))[0])
+    return _unguard(col.fillna(""))
+
+
+def _unguard(col: pd.Series) -> pd.Series:
+    if col.str.startswith("'").any():
+        col = col.str.replace(_FORMULA_GUARD, "", n=1, regex=True)
+    return col
+
+
+def _times(col: pd.Series) -> pd.Series:
+    """ISO 8601 UTC times read as bytes: `YYYY-MM-DDTHH:MM:SS.ffffffZ` in one conversion, anything else by pandas."""
+    raw = col.to_numpy()
+    if raw.dtype == np.dtype("S27") and len(raw):
+        grid = raw.view(np.uint8).reshape(len(raw), 27)
+        if np.all(grid[:, 26] == ord("Z")) and np.all(grid[:, 10] == ord("T")):
+            try:
+                stamps = grid[:, :26].copy().view("S26").ravel().astype("datetime64[us]")
+            except ValueError:
+                stamps = None
+            if stamps is not None:
+                return pd.Series(stamps, index=col.index).dt.tz_localize("UTC")
+    text = col.map(lambda b: b.decode("utf-8", "replace") if isinstance(b, bytes) else b)
+    return pd.to_datetime(text, utc=True, format="ISO8601")
 
 
 # The writer puts an apostrophe before text a spreadsheet would run as a formula
@@ -133,7 +169,7 @@ class Run:
     @property
     def samples(self) -> pd.DataFrame:
         if self._samples is None:
-            self._samples = _read_table(self.path / SAMPLES_FILE, SAMPLES_COLUMNS)
+            self._samples = _read_table(self.path / SAMPLES_FILE, SAMPLES_COLUMNS, categories=("raw", "state"))
         return self._samples
 
     @property
