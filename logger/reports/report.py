@@ -10,9 +10,10 @@ spherometer and the settings.  report.md is the same in words, with the
 uncertainty budget table.
 
 Lengths are shown in the run's unit (the profile's); the files stay in mm.
-A trace of a million samples is drawn from a min/max envelope of a few
-thousand points, which keeps every spike visible; seating markers are
-never thinned.
+A trace of a million samples is drawn from its envelope per pixel column
+(first, last, lowest and highest sample: logger.reports.envelope), read in
+chunks, so it looks the same as every point drawn and memory stays flat;
+seating markers are never thinned.
 """
 
 from __future__ import annotations
@@ -24,13 +25,14 @@ import numpy as np
 import pandas as pd
 
 from logger.reports import plotstyle as ps
+from logger.reports.envelope import TraceEnvelope
 from logger.checks import is_number
 from logger.config.profile import Spherometer
 from logger.run.columns import REPORT_PICTURE, REPORT_TEXT
 from logger.run.load import Run, load_run
 from logger.units import from_mm
 
-MAX_TRACE_POINTS = 20_000  # drawn points of the reading trace, at most (plus gap breaks)
+TRACE_COLUMNS = 2600  # envelope columns of the trace: twice the figure's width in pixels (13 in at 100 dpi)
 MAX_HATCHED_WINDOWS = 400  # beyond this, seated windows are drawn without hatching
 MAX_REASON_NOTES = 25  # rejected seatings annotated in the figure; all are in report.md
 
@@ -126,23 +128,17 @@ def header_lines(run: Run, unit: str) -> list[str]:
 # --- drawing ---------------------------------------------------------------
 
 
-def decimate_minmax(x: np.ndarray, y: np.ndarray, max_points: int) -> tuple[np.ndarray, np.ndarray]:
-    """Thin a trace to at most `max_points` points, keeping each bin's minimum and maximum.
-
-    Bins are consecutive runs of samples; the kept points stay in time order,
-    so spikes (a knock, a grit seating) survive the thinning.
-    """
-    n = len(x)
-    if n <= max_points:
-        return x, y
-    per_bin = math.ceil(n / (max_points // 2))
-    bins = math.ceil(n / per_bin)
-    padded = np.full(bins * per_bin, np.nan)
-    padded[:n] = y
-    grid = padded.reshape(bins, per_bin)
-    base = np.arange(bins) * per_bin
-    keep = np.unique(np.concatenate([base + np.nanargmin(grid, axis=1), base + np.nanargmax(grid, axis=1)]))
-    return x[keep], y[keep]
+def trace_points(run: Run, t_end_s: float, columns: int = TRACE_COLUMNS) -> tuple[np.ndarray, np.ndarray]:
+    """The readings to draw: every one when `columns` is 0, else their M4 envelope (logger.reports.envelope)."""
+    if not columns:
+        chunks = list(run.trace_chunks())
+        t = np.concatenate([c[0] for c in chunks]) if chunks else np.empty(0)
+        v = np.concatenate([c[1] for c in chunks]) if chunks else np.empty(0)
+        return t[~np.isnan(v)], v[~np.isnan(v)]
+    env = TraceEnvelope(0.0, t_end_s, columns)
+    for t, v in run.trace_chunks():
+        env.add(t, v)
+    return env.points()
 
 
 def _break_at_gaps(x: np.ndarray, y: np.ndarray, gaps) -> tuple[np.ndarray, np.ndarray]:
@@ -166,10 +162,13 @@ def zero_at(summary: dict, t_s: np.ndarray) -> np.ndarray | None:
     return zero + drift * (np.asarray(t_s, dtype=float) - t_ref) / 60.0
 
 
-def make_report_figure(run: Run, unit: str | None = None):
-    """Build the report Figure (not saved), so callers and tests can inspect it."""
+def make_report_figure(run: Run, unit: str | None = None, trace_columns: int = TRACE_COLUMNS):
+    """Build the report Figure (not saved), so callers and tests can inspect it.
+
+    `trace_columns=0` draws every reading instead of the envelope (to compare the two pictures).
+    """
     unit = unit or run.unit
-    s, sm, st = run.summary, run.samples, run.seatings
+    s, st = run.summary, run.seatings
     fig = ps.new_figure(13, 9.5)
     grid = fig.add_gridspec(3, 2, height_ratios=[0.5, 1.35, 1.0])
     head = fig.add_subplot(grid[0, :], gid="header")
@@ -180,11 +179,11 @@ def make_report_figure(run: Run, unit: str | None = None):
 
     t_end = _num(s, "t_end_s")
     if not math.isfinite(t_end):
-        t_end = float(sm["t_s"].max()) if len(sm) else 0.0
+        t_end = max((float(np.nanmax(t)) for t, _ in run.trace_chunks() if len(t)), default=0.0)
     seat = _Seatings(st, from_mm(1.0, unit))  # mm -> display unit (linear)
     tt = np.array([0.0, max(t_end, 0.0)])
     z = zero_at(s, tt)
-    _draw_trace(trace, s, sm, seat, tt, z, unit)
+    _draw_trace(trace, s, trace_points(run, t_end, trace_columns), seat, tt, z, unit)
     _draw_flats(flats, s, seat, tt, z, unit)
     _draw_sagittas(sag, s, seat, unit)
     return fig
@@ -208,13 +207,11 @@ def _draw_header(head, lines: list[str]) -> None:
               transform=head.transAxes, linespacing=1.4)
 
 
-def _draw_trace(trace, s: dict, sm: pd.DataFrame, seat: _Seatings, tt: np.ndarray, z, unit: str) -> None:
+def _draw_trace(trace, s: dict, points, seat: _Seatings, tt: np.ndarray, z, unit: str) -> None:
     """The reading trace, the seated windows, every seating and the fitted zero."""
     k, st = seat.k, seat.table
-    good = sm["value_mm"].notna().to_numpy()
-    t = sm["t_s"].to_numpy(dtype=float)[good]
-    v = sm["value_mm"].to_numpy(dtype=float)[good]
-    xd, yd = _break_at_gaps(*decimate_minmax(t, v, MAX_TRACE_POINTS), s.get("gaps"))
+    t, v = points
+    xd, yd = _break_at_gaps(t, v, s.get("gaps"))
     trace.plot(xd / 60, yd * k, gid="trace-line", label="readings", **ps.TRACE)
     if not len(t):
         trace.text(0.5, 0.5, "no readings in this run", transform=trace.transAxes, ha="center", fontsize=12)

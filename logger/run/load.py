@@ -178,6 +178,21 @@ class Run:
             self._seatings = _read_table(self.path / SEATINGS_FILE, SEATINGS_COLUMNS)
         return self._seatings
 
+    def trace_chunks(self, rows: int = 200_000):
+        """(t_s, value_mm) arrays of samples.csv, a chunk at a time: a trace without the whole table in memory."""
+        if self._samples is not None:
+            yield self._samples["t_s"].to_numpy(float), self._samples["value_mm"].to_numpy(float)
+            return
+        path = self.path / SAMPLES_FILE
+        try:
+            for chunk in pd.read_csv(path, usecols=["t_s", "value_mm"], dtype="float64", chunksize=rows,
+                                     keep_default_na=False, na_values=[""], engine="c"):
+                yield chunk["t_s"].to_numpy(), chunk["value_mm"].to_numpy()
+        except FileNotFoundError:
+            raise UserError(f"{path}: missing (not a complete run folder)") from None
+        except (OSError, UnicodeDecodeError, ValueError, pd.errors.ParserError) as exc:
+            raise UserError(f"{path}: cannot read: {' '.join(str(exc).split())}") from None
+
     @property
     def recording_path(self) -> Path:
         return self.path / RECORDING_FILE

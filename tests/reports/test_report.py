@@ -23,7 +23,8 @@ from matplotlib.collections import PolyCollection
 from tests.helpers.runfolder import write_run
 
 from logger.cli.main import main  # noqa: E402
-from logger.reports.report import MAX_TRACE_POINTS, decimate_minmax, make_report_figure, report_markdown  # noqa: E402
+from logger.reports.envelope import TraceEnvelope  # noqa: E402
+from logger.reports.report import TRACE_COLUMNS, make_report_figure, report_markdown  # noqa: E402
 from logger.run.load import Run, load_run  # noqa: E402
 
 REPO = Path(__file__).resolve().parents[2]
@@ -129,7 +130,7 @@ def test_million_samples_are_thinned_but_every_seating_kept():
     fig = make_report_figure(run)
     trace = axes_by_gid(fig)["trace"]
     drawn = line(trace, "trace-line")
-    assert len(drawn.get_xdata()) <= MAX_TRACE_POINTS
+    assert len(drawn.get_xdata()) <= 4 * TRACE_COLUMNS
     assert max(drawn.get_ydata()) == 5.0  # the spike is kept
     n_markers = sum(len(line(trace, g).get_xdata()) for g in ("seatings-flat", "seatings-surface", "seatings-rejected"))
     assert n_markers == 600
@@ -139,16 +140,49 @@ def test_million_samples_are_thinned_but_every_seating_kept():
 @settings(max_examples=60, deadline=None)
 @given(
     y=st.lists(st.floats(-1e6, 1e6), min_size=1, max_size=3000),
-    max_points=st.integers(4, 500),
+    columns=st.integers(1, 500),
+    chunk=st.integers(1, 3000),
 )
-def test_decimation_keeps_extremes_in_order(y, max_points):
+def test_envelope_keeps_each_columns_first_last_lowest_highest_in_order(y, columns, chunk):
+    # M4 (Jugel et al., VLDB 2014): per pixel column its first, last, lowest and highest sample
     x = np.arange(len(y), dtype=float)
     yy = np.asarray(y)
-    xd, yd = decimate_minmax(x, yy, max_points)
-    assert len(xd) <= max(max_points, len(y) if len(y) <= max_points else 0)
+    env = TraceEnvelope(0.0, float(len(y)), columns)
+    for i in range(0, len(y), chunk):
+        env.add(x[i:i + chunk], yy[i:i + chunk])
+    xd, yd = env.points()
+    assert len(xd) <= 4 * columns
     assert np.all(np.diff(xd) > 0)  # time order, no duplicates
     np.testing.assert_array_equal(yd, yy[xd.astype(int)])  # a subset of the input
-    assert yd.max() == yy.max() and yd.min() == yy.min()
+    col = np.minimum((x * columns / len(y)).astype(int), columns - 1)
+    for c in np.unique(col)[:50]:  # written here from the definition, column by column
+        mine = yy[col == c]
+        kept = yd[np.minimum((xd * columns / len(y)).astype(int), columns - 1) == c]
+        assert kept.min() == mine.min() and kept.max() == mine.max()
+        assert kept[0] == mine[0] and kept[-1] == mine[-1]
+
+
+def test_the_envelope_draws_the_picture_every_point_draws(tmp_path):
+    # a line through each pixel column's first, last, lowest and highest sample covers the pixels a
+    # line through all of them covers (M4, Jugel et al., VLDB 2014): the two report pictures, at the
+    # report's own size, differ in at most a small fraction of pixels (antialiasing at the edges)
+    import matplotlib.image as mpimg
+
+    from logger.reports import plotstyle as ps
+
+    run = _big_run(300_000, 120)
+    rng = np.random.default_rng(1)  # noise on a third of the samples (INVENTED): a trace with texture
+    run.samples["value_mm"] += rng.normal(0, 0.01, 300_000) * (rng.random(300_000) < 0.3)
+    pictures = {}
+    for columns in (TRACE_COLUMNS, 0, 300):
+        path = ps.save_figure(make_report_figure(run, trace_columns=columns), tmp_path / f"r{columns}.png")
+        pictures[columns] = mpimg.imread(path)[..., :3]
+
+    def differ(columns: int) -> float:
+        return float(np.any(np.abs(pictures[columns] - pictures[0]) > 0.1, axis=-1).mean())
+
+    assert differ(TRACE_COLUMNS) < 0.001
+    assert differ(300) > 0.001  # the comparison can tell: an envelope coarser than the pixels shows
 
 
 def test_gaps_break_the_trace(tmp_path):
