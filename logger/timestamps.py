@@ -7,7 +7,6 @@ import time
 from datetime import datetime, timezone
 
 import numpy as np
-import pandas as pd
 
 
 class IsoClock:
@@ -40,7 +39,7 @@ class IsoClock:
         """
         sec = np.floor(epoch_s)
         micros = np.minimum(((epoch_s - sec) * 1e6 + 0.5).astype(np.int64), 999999)
-        where, secs = pd.factorize(sec.astype(np.int64))
+        secs, where = np.unique(sec.astype(np.int64), return_inverse=True)
         table = np.frombuffer("".join(second_text(s) + "." for s in secs.tolist()).encode("ascii"), np.uint8)
         out = np.empty((len(epoch_s), 27), np.uint8)
         out[:, :20] = table.reshape(-1, 20)[where]

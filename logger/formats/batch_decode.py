@@ -23,7 +23,6 @@ from dataclasses import dataclass
 from typing import Callable
 
 import numpy as np
-import pandas as pd
 
 from logger.formats.recording import _unescape_bytes
 
@@ -70,9 +69,11 @@ def decode_block(data: bytes, parse: Callable[[bytes], tuple]) -> DecodedBlock |
     if times is None:
         return None
     parts = data.replace(b"\t", b"\n").split(b"\n")  # time, field, time, field, ..., b""
-    codes, uniques = pd.factorize(np.array(parts[1:-1:2], dtype=object))
+    fields = parts[1:-1:2]
+    index: dict[bytes, int] = {}
+    codes = np.fromiter((index.setdefault(f, len(index)) for f in fields), np.int64, len(fields))
     texts, values = [], []
-    for field in uniques.tolist():
+    for field in index:
         raw = _unescape_bytes(field)
         if raw is None:
             return None  # a malformed escape: the incremental reader reports it at its line
@@ -81,7 +82,7 @@ def decode_block(data: bytes, parse: Callable[[bytes], tuple]) -> DecodedBlock |
     t_s, reused = times
     for i in np.flatnonzero(~reused).tolist():  # times written some other way: float(), as the reader does
         t_s[i] = float(data[starts[i]:tabs[i]])
-    return DecodedBlock(t_s, arr, starts, tabs - starts, reused, codes.astype(np.int64), texts, values)
+    return DecodedBlock(t_s, arr, starts, tabs - starts, reused, codes, texts, values)
 
 
 def _times(arr: np.ndarray, starts: np.ndarray, length: np.ndarray):

@@ -12,7 +12,6 @@ out in a byte matrix, one row a line, and the padding squeezed out.
 from __future__ import annotations
 
 import numpy as np
-import pandas as pd
 
 from logger.analysis.batch_seating import STATES
 from logger.formats.batch_decode import DecodedBlock
@@ -41,7 +40,7 @@ def _tails(block: DecodedBlock, states: np.ndarray, seats: np.ndarray):
     """Each distinct (line, state, seating) formatted once by `sample_tail`: a padded byte table, lengths, codes."""
     span = int(seats.max()) + 2
     key = (block.codes * len(STATES) + states) * span + (seats + 1)
-    code, keys = pd.factorize(key)
+    keys, code = np.unique(key, return_inverse=True)
     texts = []
     for k in keys.tolist():
         rest, seat = divmod(k, span)
