@@ -52,5 +52,5 @@ def _feed_block(block, pipeline: Pipeline, writer: RunWriter) -> None:
         states[good], seats[good] = detect_block(pipeline.detector, block.t_s[good], block.values_mm()[good],
                                                  pipeline.seatings)
     pipeline.last_t_s = float(block.t_s[-1])
-    pipeline._state = pipeline.detector.state
+    pipeline._state = pipeline.detector.state  # as Pipeline.line leaves it (no listener here hears states)
     writer.sample_block(block_rows(block, pipeline.start_wall + block.t_s, states, seats))

@@ -9,7 +9,7 @@ from logger.config.profile import Profile
 from logger.errors import UserError
 from logger.live.listener import Listener
 from logger.live.pipeline import Pipeline, RunSettings
-from logger.formats.recording import _records, is_recording, open_recording, parse_event, read_plain
+from logger.formats.recording import is_recording, open_recording, parse_event, read_plain, read_recording
 from logger.live.batch import feed_recording
 from logger.run.writer import RunWriter, prepare_folder
 
@@ -40,8 +40,11 @@ def replay_file(path: str | Path, profile: Profile, settings: RunSettings, out_d
 
     batch = batch and not listeners
     if is_recording(path):
-        header, p, f, first, lineno = open_recording(path)
-        records = _records(p, f, first, lineno, on_comment) if not batch else None
+        if batch:
+            header, p, f, first, lineno = open_recording(path)
+            records = None
+        else:
+            header, records = read_recording(path, on_comment)
         start_wall = header.get("start_wall", 0.0)
         source = {"recording": str(path), **{k: v for k, v in header.items() if k != "start_wall"}}
     elif rate_hz is None:

@@ -60,7 +60,7 @@ def test_every_sample_stream(rec, blocks, tmp_path, profile):
     assert_same(both(rec, tmp_path, profile))
 
 
-def test_a_long_session_with_rests_holds_and_compaction(blocks, tmp_path, profile, monkeypatch):
+def test_a_long_session_with_rests_holds_and_compaction(blocks, tmp_path, profile):
     # 40 s holds at 1 kHz pass the detector's 20,000-sample compaction, cut across blocks
     stream = session(3, rate_hz=1000, seated_s=40, lifted_s=2, seed=3)
     write_rec(tmp_path / "long.rec", timed(stream.lines, 1000))
