@@ -169,7 +169,7 @@ class Pipeline:
         self._tell_seating(seating)
 
     def _tell_seating(self, seating: Seating) -> None:
-        decision, summary = self.result.decisions[seating.index], self.summary
+        decision, summary = self.result.decisions[seating.index - 1], self.summary
         for lst in self.listeners:
             lst.seating(decision, summary)
 

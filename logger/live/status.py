@@ -9,7 +9,7 @@ from logger.live.listener import Listener, Sample
 def verdict_text(decision) -> str:
     """`seating 3 on the flat: accepted` -- the same words on every screen and in the log."""
     verdict = "accepted" if decision.accepted else f"rejected ({decision.reason})"
-    return f"seating {decision.seating.index + 1} on the {decision.phase}: {verdict}"
+    return f"seating {decision.seating.index} on the {decision.phase}: {verdict}"
 
 
 class RunStatus(Listener):

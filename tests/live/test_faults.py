@@ -311,7 +311,7 @@ def check_after_kill(out: Path):
     seats = pd.read_csv(out / "seatings.csv")
     summary = summary_of(out)
     assert summary["seatings_total"] <= len(seats)
-    assert list(seats["index"][: summary["seatings_total"]]) == list(range(summary["seatings_total"]))
+    assert list(seats["index"][: summary["seatings_total"]]) == list(range(1, summary["seatings_total"] + 1))
     return summary["seatings_total"]
 
 
