@@ -31,17 +31,22 @@ def _echo_json(data: dict) -> None:
 @click.option("--sagitta", type=POSITIVE, required=True, help="Reading relative to the flat zero, in the profile's unit.")
 @click.option("--surface", type=click.Choice(geometry.SURFACES), default="concave", show_default=True)
 @click.option("--scatter", type=NON_NEGATIVE, help="Standard deviation of single seatings (profile's unit): adds a budget.")
-@click.option("--seatings", type=int, help="How many seatings the sagitta is the mean of (with --scatter).")
+@click.option("--mean-of", "mean_of", type=int, metavar="N",
+              help="The sagitta is the mean of N seatings (with --scatter).")
+@click.option("--seatings", "old_seatings", type=int, hidden=True)
 @click.option("--zero-u", type=NON_NEGATIVE, help="Standard uncertainty of the zero (profile's unit), if known.")
 @click.option("--json", "as_json", is_flag=True, help="Print JSON for scripts.")
-def radius(profile_path, sagitta, surface, scatter, seatings, zero_u, as_json):
+def radius(profile_path, sagitta, surface, scatter, mean_of, old_seatings, zero_u, as_json):
     """Radius of curvature and focal length from one sagitta (feet correction included)."""
+    if old_seatings is not None:  # capture's stop-after-N; here the count of a mean has its own name
+        raise UserError(f"--seatings {old_seatings}: radius takes --mean-of {old_seatings} "
+                        "(the sagitta is the mean of that many seatings)")
     profile = load_profile(profile_path)
     unit = profile.unit
-    if (scatter is None) != (seatings is None):
-        raise UserError("--scatter and --seatings go together: give both or neither")
-    if seatings is not None and seatings < 2:
-        raise UserError(f"--seatings: a scatter needs at least 2 seatings, got {seatings}")
+    if (scatter is None) != (mean_of is None):
+        raise UserError("--scatter and --mean-of go together: give both or neither")
+    if mean_of is not None and mean_of < 2:
+        raise UserError(f"--mean-of: a scatter needs at least 2 seatings, got {mean_of}")
     s_mm = to_mm(sagitta, unit)
     ring_mm, foot_mm = profile.contact_mm(surface)
     try:
@@ -49,7 +54,7 @@ def radius(profile_path, sagitta, surface, scatter, seatings, zero_u, as_json):
     except UserError as exc:
         raise UserError(f"--sagitta {sagitta:g} {unit}: {exc}") from None
     q_mm = profile.indicator.resolution_mm
-    comps = reading_components(q_mm, None if scatter is None else to_mm(scatter, unit), seatings)
+    comps = reading_components(q_mm, None if scatter is None else to_mm(scatter, unit), mean_of)
     if zero_u is not None:
         comps.append(Component("zero (flat seatings)", to_mm(zero_u, unit)))
     budget = radius_budget(profile.spherometer, surface, s_mm, comps)

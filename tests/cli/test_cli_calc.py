@@ -105,11 +105,11 @@ def test_plan_json_matches_exact_construction(case, N, D_frac):
 
 
 def test_radius_human_output_and_budget():
-    res = run("radius", "--profile", EXAMPLE, "--sagitta", "0.5", "--scatter", "0.002", "--seatings", "10")
+    res = run("radius", "--profile", EXAMPLE, "--sagitta", "0.5", "--scatter", "0.002", "--mean-of", "10")
     assert res.exit_code == 0, res.stderr
     assert "radius of curvature" in res.stdout and "Uncertainty budget" in res.stdout
     assert "seating scatter" in res.stdout and "leg spacing a" in res.stdout and "expanded uncertainty U" in res.stdout
-    out = ok_json("radius", "--profile", EXAMPLE, "--sagitta", "0.5", "--scatter", "0.002", "--seatings", "10")
+    out = ok_json("radius", "--profile", EXAMPLE, "--sagitta", "0.5", "--scatter", "0.002", "--mean-of", "10")
     assert out["budget"]["nu_eff"] > 9 and out["radius_U"] == pytest.approx(out["budget"]["U_mm"])
     # Source: GUM 4.2.3, s/sqrt(n) with n - 1 dof.
     (scatter,) = [c for c in out["budget"]["components"] if c["name"] == "seating scatter"]
@@ -264,9 +264,11 @@ CMD_BAD = [
     (("radius", "--profile", EXAMPLE), ["--sagitta"]),
     (("radius", "--sagitta", "0.5"), ["--profile"]),
     (("radius", "--profile", EXAMPLE, "--sagitta", "0.5", "--surface", "flat"), ["--surface"]),
-    (("radius", "--profile", EXAMPLE, "--sagitta", "0.5", "--scatter", "0.002"), ["--seatings"]),
-    (("radius", "--profile", EXAMPLE, "--sagitta", "0.5", "--scatter", "0.002", "--seatings", "1"), ["--seatings"]),
-    (("radius", "--profile", EXAMPLE, "--sagitta", "0.5", "--scatter", "-1", "--seatings", "5"), ["--scatter"]),
+    (("radius", "--profile", EXAMPLE, "--sagitta", "0.5", "--scatter", "0.002"), ["--mean-of"]),
+    (("radius", "--profile", EXAMPLE, "--sagitta", "0.5", "--scatter", "0.002", "--mean-of", "1"), ["--mean-of"]),
+    # capture's stop-after-N is not the count of a mean: the old spelling says which name to use
+    (("radius", "--profile", EXAMPLE, "--sagitta", "0.5", "--scatter", "0.002", "--seatings", "5"), ["--mean-of 5"]),
+    (("radius", "--profile", EXAMPLE, "--sagitta", "0.5", "--scatter", "-1", "--mean-of", "5"), ["--scatter"]),
     (("radius", "--profile", EXAMPLE, "--sagitta", "0.5", "--zero-u", "-1"), ["--zero-u"]),
     (("plan", "--profile", EXAMPLE, "--diameter", "200", "--focal-ratio", "0"), ["--focal-ratio"]),
     (("plan", "--profile", EXAMPLE, "--diameter", "200", "--focal-ratio", "-5"), ["--focal-ratio"]),
