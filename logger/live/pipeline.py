@@ -40,7 +40,7 @@ class RunSettings:
                     spherometer=dict(kind=profile.spherometer.kind, params_mm=profile.spherometer.params_mm,
                                      u_mm=profile.spherometer.u_mm),
                     indicator=asdict(profile.indicator), detector=asdict(self.detector),
-                    analysis=asdict(self.analysis), source=self.source)
+                    analysis=self.analysis.as_dict(), source=self.source)
 
 
 class Pipeline:

@@ -53,7 +53,7 @@ RATE_HZ = 200.0
 
 
 def fresh_settings(profile, **over):
-    kw = dict(label="", rejection="modified-z", z_cut=3.5, flat_first=None, phase_gap=None, max_spread=None,
+    kw = dict(label="", rejection="modified-z", z_cut=None, alpha=None, flat_first=None, phase_gap=None, max_spread=None,
               settle=None, band=None, lift=None, target_radius=None, focal_length=None, focal_ratio=None,
               diameter=None)
     kw.update(over)
