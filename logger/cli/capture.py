@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-import signal
-
 import click
 
 from logger.cli.options import NON_NEGATIVE, POSITIVE, analysis_options, terminal_watchers, view_option
@@ -42,9 +40,7 @@ def capture_cmd(port, out_dir, baudrate, bytesize, parity, stopbits, poll, poll_
     the device never appeared.
     """
     poll_bytes = poll.encode("latin-1").decode("unicode_escape").encode("latin-1") if poll else None
-    stop = Stop()
-    signal.signal(signal.SIGTERM, stop)
-    signal.signal(signal.SIGINT, stop)
+    stop = Stop.on_signals()
     watchers, shown = terminal_watchers(view, profile.unit, port, bells=not quiet)
     watchers += stand_watchers(web, web_key, speak, profile.unit, watchers[0])
     with shown:

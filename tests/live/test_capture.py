@@ -149,20 +149,25 @@ def _capture_process(port, out, *extra):
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env)
 
 
+def wait_for_a_seating(out, timeout_s=60.0) -> None:
+    """Until the first seating is in the run folder's summary (a bound, not a timing)."""
+    deadline = time.monotonic() + timeout_s
+    while time.monotonic() < deadline:
+        try:
+            if json.loads((out / "summary.json").read_text())["seatings_total"] >= 1:
+                return
+        except (OSError, ValueError, KeyError):
+            pass
+        time.sleep(0.1)
+
+
 def test_sigint_and_sigterm_end_cleanly_with_the_summary(tmp_path):
     for sig in (signal.SIGINT, signal.SIGTERM):
         run = short_session()
         out = tmp_path / sig.name
         with PtyServer(run) as server:
             proc = _capture_process(server.path, out)
-            deadline = time.monotonic() + 30
-            while time.monotonic() < deadline:  # until the first seating is in the summary
-                try:
-                    if json.loads((out / "summary.json").read_text())["seatings_total"] >= 1:
-                        break
-                except (OSError, ValueError, KeyError):
-                    pass
-                time.sleep(0.1)
+            wait_for_a_seating(out)
             proc.send_signal(sig)
             stdout, stderr = proc.communicate(timeout=30)
         assert proc.returncode == 0, stderr
