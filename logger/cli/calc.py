@@ -19,7 +19,7 @@ from logger.errors import UserError
 from logger.config.profile import DEFAULT_U_MM, SENSES, load_profile, parse_profile
 from logger.run.writer import write_atomic
 from logger.analysis.uncertainty import Component, radius_budget, reading_components, seatings_needed
-from logger.units import check_unit, from_mm, to_mm
+from logger.units import UNITS, from_mm, to_mm
 
 
 def _echo_json(data: dict) -> None:
@@ -175,8 +175,9 @@ def profile_text(data: dict, comment: str) -> str:
 
 
 @click.command("new-profile")
-@click.option("--out", "out_path", required=True, help="Profile file to write (TOML).")
-@click.option("--unit", required=True, help="Unit of every length given here and in the file: mm or in.")
+@click.option("--out", "out_path", required=True, type=click.Path(dir_okay=False), metavar="FILE.toml",
+              help="The profile file to write (TOML).")
+@click.option("--unit", required=True, type=click.Choice(UNITS), help="Unit of every length given here and in the file.")
 @click.option("--outside", type=POSITIVE, nargs=3, help="Caliper readings outside-to-outside of each pair of balls.")
 @click.option("--inside", type=POSITIVE, nargs=3, help="Caliper readings inside-to-inside of each pair of balls.")
 @click.option("--centres", type=POSITIVE, nargs=3, help="Centre-to-centre distances of the balls.")
@@ -187,9 +188,9 @@ def profile_text(data: dict, comment: str) -> str:
 @click.option("--ring-radius", type=POSITIVE, help="A calibrated ring radius (e.g. from a reference sphere).")
 @click.option("--resolution", type=POSITIVE, required=True, help="One indicator count, in --unit.")
 @click.option("--sense", type=click.Choice(SENSES), default="in-positive", show_default=True)
-@click.option("--indicator-unit", help="Unit of stream lines that carry none (default: --unit).")
+@click.option("--indicator-unit", type=click.Choice(UNITS), help="Unit of stream lines that carry none (default: --unit).")
 @click.option("--name", default="", help="A label for the instrument.")
-@click.option("--force", is_flag=True, help="Replace FILE if it exists.")
+@click.option("--force", is_flag=True, help="Replace FILE.toml if it exists.")
 def new_profile(out_path, unit, outside, inside, centres, ball, ring_inner, ring_outer, edge_radius, ring_radius,
                 resolution, sense, indicator_unit, name, force):
     """Write a spherometer profile from caliper readings.
@@ -198,7 +199,6 @@ def new_profile(out_path, unit, outside, inside, centres, ball, ring_inner, ring
     diameter; inside-to-inside is the centre distance minus one (common practice).
     """
     out = Path(out_path)
-    unit = check_unit(unit, "--unit")
     readings = {k: v for k, v in (("--outside", outside), ("--inside", inside), ("--centres", centres)) if v}
     ring_opts = {k: v for k, v in (("--ring-inner", ring_inner), ("--ring-outer", ring_outer),
                                    ("--edge-radius", edge_radius)) if v is not None}
@@ -232,7 +232,7 @@ def new_profile(out_path, unit, outside, inside, centres, ball, ring_inner, ring
         how = f"calibrated ring radius {ring_radius:g} {unit}"
     ind = {"resolution": resolution, "sense": sense}
     if indicator_unit is not None:
-        ind["unit"] = check_unit(indicator_unit, "--indicator-unit")
+        ind["unit"] = indicator_unit
     data = {**({"name": name} if name else {}), "unit": unit, "spherometer": sph, "indicator": ind}
     parse_profile(data, "new-profile options")  # every check the reader makes, before anything is written
     stamp = datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")

@@ -11,9 +11,10 @@ from logger.live.present import result_lines
 
 
 @click.command("capture")
-@click.option("--port", required=True, help="Device path, COM name or URL (socket://host:port, rfc2217://, loop://).")
-@click.option("--out", "out_dir", required=True, type=click.Path(file_okay=False), help="Run folder to write.")
-@click.option("--baud", "baudrate", type=click.IntRange(50), default=9600, show_default=True)
+@click.option("--port", required=True, metavar="DEVICE|URL", help="Device path, COM name or URL (socket://host:port, rfc2217://, loop://).")
+@click.option("--out", "out_dir", required=True, type=click.Path(file_okay=False), metavar="DIR",
+              help="The run folder to write (a folder, made if missing).")
+@click.option("--baud", "baudrate", type=click.IntRange(50), default=9600, show_default=True, metavar="N")
 @click.option("--bytesize", type=click.Choice(["5", "6", "7", "8"]), default="8", show_default=True)
 @click.option("--parity", type=click.Choice(["N", "E", "O", "M", "S"]), default="N", show_default=True)
 @click.option("--stopbits", type=click.Choice(["1", "1.5", "2"]), default="1", show_default=True)
@@ -21,8 +22,8 @@ from logger.live.present import result_lines
               "(backslash escapes allowed, e.g. '?\\r').")
 @click.option("--poll-every", type=POSITIVE, default=0.1, show_default=True, help="Seconds between requests.")
 @click.option("--duration", "duration_s", type=POSITIVE, default=None, help="Stop after this many seconds.")
-@click.option("--seatings", "surface_seatings", type=click.IntRange(1), default=None,
-              help="Stop after this many accepted surface seatings.")
+@click.option("--seatings", "surface_seatings", type=click.IntRange(1), default=None, metavar="N",
+              help="Stop after N accepted surface seatings.")
 @click.option("--wait", "wait_s", type=NON_NEGATIVE, default=10.0, show_default=True,
               help="Seconds to wait for a device that is not there yet (then exit status 3).")
 @view_option

@@ -18,8 +18,8 @@ from logger.run.columns import RECORDING_FILE, REPORT_PICTURE, REPORT_TEXT
 
 
 @click.command("demo")
-@click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
-              help="Run folder (default: runs/demo-<time>).")
+@click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None, metavar="DIR",
+              help="The run folder to write (a folder; default runs/demo-<time>).")
 @view_option
 @stand_options
 def demo_cmd(out_dir, view, web, web_key, speak):

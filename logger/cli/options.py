@@ -80,9 +80,10 @@ def analysis_options(f):
                      help="--rejection modified-z: the modified z-score beyond which a seating is rejected "
                           "(default 3.5)."),
         click.option("--alpha", type=click.FloatRange(0, 1, min_open=True, max_open=True), default=None,
+                     metavar="0<NUMBER<1",
                      help="--rejection grubbs: the significance level of Grubbs' test (default 0.05). "
                           "Chauvenet's criterion takes no parameter."),
-        click.option("--flat-first", type=click.IntRange(1), default=None,
+        click.option("--flat-first", type=click.IntRange(1), default=None, metavar="N",
                      help="Take the first N seatings as the flat, whatever they read (very shallow curves)."),
         click.option("--phase-gap", type=POSITIVE, default=None,
                      help="How far from the zero a seating must be to count as the surface [profile unit]; "

@@ -211,7 +211,7 @@ def test_new_profile_refuses_to_overwrite_unless_forced(tmp_path):
 
 
 NEW_BAD = [
-    (("--unit", "cm", "--centres", 70, 70, 70, "--ball", 6, "--resolution", 0.001), ["--unit", "unknown unit"]),
+    (("--unit", "cm", "--centres", 70, 70, 70, "--ball", 6, "--resolution", 0.001), ["--unit", "'cm' is not one of"]),
     (("--unit", "mm", "--centres", 10, 10, 30, "--ball", 1, "--resolution", 0.001), ["triangle"]),
     (("--unit", "mm", "--outside", 5, 70, 70, "--ball", 6, "--resolution", 0.001), ["--outside"]),
     (("--unit", "mm", "--centres", 70, 70, 70, "--ball", -6, "--resolution", 0.001), ["--ball"]),
