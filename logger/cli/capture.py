@@ -27,12 +27,13 @@ from logger.live.present import result_lines
 @click.option("--wait", "wait_s", type=NON_NEGATIVE, default=10.0, show_default=True,
               help="Seconds to wait for a device that is not there yet (then exit status 3).")
 @view_option
-@click.option("--quiet", is_flag=True, help="No bell cues.")
+@click.option("--no-bells", is_flag=True, help="No bell cues (one ring accepted, two rejected, three zero set).")
+@click.option("--quiet", "old_quiet", is_flag=True, hidden=True)  # the earlier name of --no-bells
 @click.option("--force", is_flag=True, help="Write into a run folder that already holds a run.")
 @stand_options
 @analysis_options
 def capture_cmd(port, out_dir, baudrate, bytesize, parity, stopbits, poll, poll_every, duration_s,
-                surface_seatings, wait_s, view, quiet, force, web, web_key, speak, profile, run_settings):
+                surface_seatings, wait_s, view, no_bells, old_quiet, force, web, web_key, speak, profile, run_settings):
     """Log the indicator live, notice every seating, and keep the run folder up to date.
 
     Seat on the flat first (the zero), then on the surface, and on the flat
@@ -42,7 +43,7 @@ def capture_cmd(port, out_dir, baudrate, bytesize, parity, stopbits, poll, poll_
     """
     poll_bytes = poll.encode("latin-1").decode("unicode_escape").encode("latin-1") if poll else None
     stop = Stop.on_signals()
-    watchers, shown = terminal_watchers(view, profile.unit, port, bells=not quiet)
+    watchers, shown = terminal_watchers(view, profile.unit, port, bells=not (no_bells or old_quiet))
     watchers += stand_watchers(web, web_key, speak, profile.unit, watchers[0])
     with shown:
         summary = capture(port, profile, run_settings, out_dir, baudrate=baudrate, bytesize=int(bytesize),

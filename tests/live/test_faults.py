@@ -295,7 +295,7 @@ def start_capture(port, out, *extra, **popen):
     env = dict(os.environ, PYTHONPATH=str(ROOT) + os.pathsep + os.environ.get("PYTHONPATH", ""))
     return subprocess.Popen([sys.executable, "-m", "logger", "capture", "--port", str(port), "--out", str(out),
                              "--profile", str(EXAMPLE_PROFILE), "--settle", str(SETTLE_S), "--view", "plain",
-                             "--quiet", "--wait", "20", *map(str, extra)],
+                             "--no-bells", "--wait", "20", *map(str, extra)],
                             env=env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True, **popen)
 
 
