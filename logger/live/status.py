@@ -20,6 +20,7 @@ class RunStatus(Listener):
         self.value_mm: float | None = None
         self.summary: dict = {}
         self.last_event = ""
+        self.last_phase: str | None = None  # the phase of the latest seating: a flat after the surface checks the zero
 
     def sample(self, sample: Sample) -> None:
         if sample.value_mm is not None:
@@ -34,3 +35,4 @@ class RunStatus(Listener):
     def seating(self, decision, summary: dict) -> None:
         self.summary = summary
         self.last_event = verdict_text(decision)
+        self.last_phase = decision.phase

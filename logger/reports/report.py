@@ -89,7 +89,7 @@ def header_lines(run: Run, unit: str) -> list[str]:
         r_line += f"   f/{s['focal_ratio']:.2f}"
     target = ""
     if is_number(s.get("target_radius_mm")):
-        target = f"target R {fmt_len(s['target_radius_mm'], unit)}, R still to go {fmt_len(s.get('radius_to_go_mm'), unit, 4)}"
+        target = f"target R {fmt_len(s['target_radius_mm'], unit)}, radius still to go {fmt_len(s.get('radius_to_go_mm'), unit, 4)}"
         if is_number(s.get("sagitta_to_go_mm")):
             target += f", sagitta still to go {fmt_len(s['sagitta_to_go_mm'], unit, 4)}"
     drift = _num(s, "drift_mm_per_min")

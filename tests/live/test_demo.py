@@ -44,7 +44,7 @@ def test_ctrl_c_ends_the_demo_like_a_capture(tmp_path):
     proc.send_signal(signal.SIGINT)
     stdout, stderr = proc.communicate(timeout=60)
     assert proc.returncode == 0, stderr
-    assert "Traceback" not in stderr and f"run folder: {out}" in stdout and "status:" in stdout
+    assert "Traceback" not in stderr and f"run folder: {out}" in stdout and "seatings:" in stdout
     summary = json.loads((out / "summary.json").read_text())
     assert 1 <= summary["seatings_total"] < 17 and summary["ended_utc"]  # ended early: the demo plans 17
     assert (out / "stream.rec").read_text().rstrip().splitlines()[-1].startswith("# end ")
