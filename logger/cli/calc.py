@@ -180,7 +180,8 @@ def profile_text(data: dict, comment: str) -> str:
 @click.option("--unit", required=True, type=click.Choice(UNITS), help="Unit of every length given here and in the file.")
 @click.option("--outside", type=POSITIVE, nargs=3, help="Caliper readings outside-to-outside of each pair of balls.")
 @click.option("--inside", type=POSITIVE, nargs=3, help="Caliper readings inside-to-inside of each pair of balls.")
-@click.option("--centres", type=POSITIVE, nargs=3, help="Centre-to-centre distances of the balls.")
+@click.option("--leg-spacings", "--centres", "centres", type=POSITIVE, nargs=3, metavar="A B C",
+              help="The leg spacings: centre-to-centre distances of the balls (the profile's leg_spacings).")
 @click.option("--ball", type=POSITIVE, help="Ball diameter (three-ball; optional for --ring-radius).")
 @click.option("--ring-inner", type=POSITIVE, help="Ring spherometer: inner diameter of the ring.")
 @click.option("--ring-outer", type=POSITIVE, help="Ring spherometer: outer diameter of the ring.")
@@ -199,13 +200,13 @@ def new_profile(out_path, unit, outside, inside, centres, ball, ring_inner, ring
     diameter; inside-to-inside is the centre distance minus one (common practice).
     """
     out = Path(out_path)
-    readings = {k: v for k, v in (("--outside", outside), ("--inside", inside), ("--centres", centres)) if v}
+    readings = {k: v for k, v in (("--outside", outside), ("--inside", inside), ("--leg-spacings", centres)) if v}
     ring_opts = {k: v for k, v in (("--ring-inner", ring_inner), ("--ring-outer", ring_outer),
                                    ("--edge-radius", edge_radius)) if v is not None}
     kinds = [k for k, used in (("three-ball", readings), ("ring", ring_opts), ("calibrated", ring_radius is not None))
              if used]
     if len(kinds) != 1 or len(readings) > 1:
-        raise UserError("give exactly one of --outside, --inside, --centres (three-ball), "
+        raise UserError("give exactly one of --outside, --inside, --leg-spacings (three-ball), "
                         "--ring-inner/--ring-outer (ring) or --ring-radius (calibrated)")
     kind = kinds[0]
     if kind == "three-ball":
@@ -214,7 +215,7 @@ def new_profile(out_path, unit, outside, inside, centres, ball, ring_inner, ring
             raise UserError("--ball: the ball diameter is needed for a three-ball spherometer")
         if option == "--outside" and min(values) <= ball:
             raise UserError(f"{option}: a reading of {min(values):g} {unit} is not larger than the ball diameter")
-        if option == "--centres":
+        if option == "--leg-spacings":
             sph = {"kind": kind, "leg_spacings": list(values), "ball_diameter": ball}
         else:  # kept as read: the legs then share the ball's error in the budget
             sph = {"kind": kind, "leg_readings": list(values), "readings": option[2:], "ball_diameter": ball}
@@ -241,6 +242,11 @@ def new_profile(out_path, unit, outside, inside, centres, ball, ring_inner, ring
         raise UserError(f"{out}: already exists (use --force to replace it)")
     write_atomic(out, text)
     load_profile(out)  # what was written reads back
-    r_mm, rho_mm = parse_profile(data).contact_mm("concave")
-    click.echo(f"wrote {out}: {kind}, ring radius {from_mm(r_mm, unit):.6g} {unit} (concave), "
-               f"foot radius {from_mm(rho_mm, unit):.6g} {unit}")
+    profile = parse_profile(data)
+    (r_mm, rho_mm), (r_convex_mm, _) = profile.contact_mm("concave"), profile.contact_mm("convex")
+    ring = f"ring radius {from_mm(r_mm, unit):.6g} {unit}"
+    if r_convex_mm != r_mm:  # a ring sits on its outer edge on a concave surface, its inner edge on a convex one
+        ring += f" on a concave surface, {from_mm(r_convex_mm, unit):.6g} {unit} on a convex one"
+    elif kind == "three-ball":
+        ring += " (the circle through the ball centres)"
+    click.echo(f"wrote {out}: {kind}, {ring}, foot radius {from_mm(rho_mm, unit):.6g} {unit}")

@@ -156,8 +156,8 @@ class Pipeline:
         if lines == 0:
             s.update(status="no readings", message="Nothing was received.")
         elif self.decoder.good == 0:
-            s.update(status="no readings",
-                     message=f"All {lines} lines were unreadable: check the baud rate and the cable.")
+            s.update(status="no readings", message=f"All {lines} lines were bad lines (no reading in them): "
+                                                   "check the baud rate and the cable.")
         return s
 
     def _seating(self, seating: Seating) -> None:

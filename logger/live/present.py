@@ -19,8 +19,8 @@ def result_lines(summary: dict) -> list[str]:
     out = [f"{summary.get('status')}: {summary.get('message')}"]
     out.append(
         f"seatings: {summary.get('seatings_flat', 0)} flat, {summary.get('seatings_surface', 0)} surface accepted, "
-        f"{summary.get('seatings_rejected', 0)} rejected; lines {summary.get('lines', 0)}, "
-        f"unreadable {summary.get('bad_lines', 0)}"
+        f"{summary.get('seatings_rejected', 0)} rejected; {summary.get('bad_lines', 0)} bad lines of "
+        f"{summary.get('lines', 0)}"
     )
     if summary.get("zero_mm") is not None:
         drift = summary.get("drift_mm_per_min") or 0.0

@@ -162,7 +162,7 @@ def _new(tmp_path, *args, name="new.toml"):
     return run("new-profile", "--out", tmp_path / name, *args)
 
 
-@pytest.mark.parametrize("how,offset", [("--outside", -6.35), ("--inside", 6.35), ("--centres", 0.0)])
+@pytest.mark.parametrize("how,offset", [("--outside", -6.35), ("--inside", 6.35), ("--leg-spacings", 0.0), ("--centres", 0.0)])
 def test_new_profile_from_caliper_readings_round_trips(tmp_path, how, offset):
     # Source: common practice: outside-to-outside = centre distance + one ball diameter,
     # inside-to-inside = centre distance - one ball diameter.
@@ -170,6 +170,8 @@ def test_new_profile_from_caliper_readings_round_trips(tmp_path, how, offset):
         else [70.02, 69.98, 70.01]
     res = _new(tmp_path, "--unit", "mm", how, *readings, "--ball", "6.35", "--resolution", "0.001")
     assert res.exit_code == 0, res.stderr
+    # a three-ball instrument has one ring radius, the circle through the ball centres, whatever the surface
+    assert "(the circle through the ball centres)" in res.stdout and "concave" not in res.stdout
     p = load_profile(tmp_path / "new.toml")
     assert list(p.spherometer.legs_mm()) == pytest.approx([x + offset for x in readings], abs=1e-9)
     assert p.spherometer.params_mm["ball_diameter"] == 6.35 and p.indicator.resolution_mm == 0.001
@@ -187,6 +189,8 @@ def test_new_profile_ring_and_calibrated_in_inches(tmp_path):
     res = _new(tmp_path, "--unit", "in", "--ring-inner", "2.75", "--ring-outer", "3", "--edge-radius", "0.01",
                "--resolution", "0.00005", "--indicator-unit", "in", "--name", "my \"ring\"")
     assert res.exit_code == 0, res.stderr
+    # a ring sits on its outer edge on a concave surface (3/2 - 0.01), its inner edge on a convex one (2.75/2 + 0.01)
+    assert "ring radius 1.49 in on a concave surface, 1.385 in on a convex one" in res.stdout
     p = load_profile(tmp_path / "new.toml")
     ref = load_profile(RING_IN)
     assert (p.spherometer.kind, p.spherometer.params_mm) == ("ring", ref.spherometer.params_mm)
