@@ -51,7 +51,7 @@ def _queued(dev: PtyDevice) -> int:
 
 def start_capture(dev: PtyDevice, out: Path, *extra) -> subprocess.Popen:
     proc = subprocess.Popen([sys.executable, "-m", "logger", "capture", "--port", str(dev.link), "--out", str(out),
-                             "--profile", str(PROFILE), "--view", "plain", "--quiet", *map(str, extra)],
+                             "--profile", str(PROFILE), "--view", "plain", "--no-bells", *map(str, extra)],
                             env=ENV, cwd=ROOT, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
     _wait(lambda: (out / RECORDING_FILE).exists() or proc.poll() is not None, 60, "the capture to open the port")
     if proc.poll() is not None:

@@ -34,8 +34,8 @@ from logger.cli.options import run_settings_from
 from logger.config.profile import load_profile
 from logger.live.replay import replay_file
 p = load_profile(sys.argv[2])
-kw = dict(label="", rejection="modified-z", z_cut=3.5, flat_first=None, phase_gap=None, max_spread=None, settle=None,
-          band=None, lift=None, target_radius=None, focal_length=None, focal_ratio=None, diameter=None)
+kw = dict(label="", rejection="modified-z", z_cut=3.5, alpha=None, flat_first=None, phase_gap=None, max_spread=None,
+          settle=None, band=None, lift=None, target_radius=None, focal_length=None, focal_ratio=None, diameter=None)
 s = replay_file(sys.argv[1], p, run_settings_from(p, kw), sys.argv[3])
 print(s["lines"], resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)
 """
@@ -96,7 +96,7 @@ def run(tmp: Path) -> list[dict]:
     rec = tmp / "long.rec"
     n = write_recording(rec)
     profile = load_profile(PROFILE)
-    kw = dict(label="", rejection="modified-z", z_cut=3.5, flat_first=None, phase_gap=None, max_spread=None,
+    kw = dict(label="", rejection="modified-z", z_cut=3.5, alpha=None, flat_first=None, phase_gap=None, max_spread=None,
               settle=None, band=None, lift=None, target_radius=None, focal_length=None, focal_ratio=None,
               diameter=None)
     baseline_loop(rec)  # warm the page cache for all

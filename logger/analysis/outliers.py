@@ -4,22 +4,27 @@ Every test returns, for each value, (rejected, score, reason) and never
 deletes anything: the session keeps rejected seatings in its files.
 
 * modified z-score (Iglewicz & Hoaglin 1993): M = 0.6745 (x - median) / MAD,
-  rejected when |M| > 3.5.  The MAD is floored at the indicator step: with
+  rejected when |M| > the z cut (3.5, their recommendation).  The MAD is floored at the indicator step: with
   quantised readings many seatings show the same count, the MAD becomes zero
   and every honest seating one count off would otherwise look like an outlier.
 * Grubbs' test, two-sided, repeated one value at a time (NIST/SEMATECH
-  e-Handbook of Statistical Methods, section 1.3.5.17), alpha = 0.05.
-* Chauvenet's criterion: reject when n * P(|Z| >= z) < 1/2.
+  e-Handbook of Statistical Methods, section 1.3.5.17), at a significance
+  level alpha (0.05 by default).
+* Chauvenet's criterion: reject when n * P(|Z| >= z) < 1/2.  It takes no
+  parameter: the 1/2 is the criterion itself (tuning it makes another test).
 For the last two the standard deviation is floored at the step likewise.
 
-`REJECTIONS` maps each method's name to its test; `METHODS` (the
---rejection choices) are its keys, so a new method is one function and one
-entry there.
+`REJECTIONS` maps each method's name to its test and the one parameter that
+tunes it; `METHODS` (the --rejection choices) are its keys, so a new method is
+one function and one entry there.  A parameter given to a method it does not
+tune is an error (`limits`), never silently ignored.
 """
 
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
+from typing import Callable
 
 import numpy as np
 from scipy import stats
@@ -82,21 +87,53 @@ def keep_all(values):
     return [(False, 0.0, "")] * len(values)
 
 
-# name -> test(values, floor, cut); the order is the order of the --rejection choices.
+@dataclass(frozen=True)
+class Method:
+    """A rejection test and the one setting that tunes it (`parameter` None: it takes none)."""
+
+    test: Callable  # test(values, floor, limit) -> [(rejected, score, reason)]
+    parameter: str | None = None  # the AnalysisSettings field, e.g. "z_cut"; the option is --z-cut
+    default: float | None = None
+
+
+# name -> Method; the order is the order of the --rejection choices.
 REJECTIONS = {
-    "modified-z": modified_z,
-    "grubbs": lambda values, floor, cut: grubbs(values, floor),
-    "chauvenet": lambda values, floor, cut: chauvenet(values, floor),
-    "none": lambda values, floor, cut: keep_all(values),
+    "modified-z": Method(modified_z, "z_cut", 3.5),
+    "grubbs": Method(grubbs, "alpha", 0.05),
+    "chauvenet": Method(lambda values, floor, limit: chauvenet(values, floor)),
+    "none": Method(lambda values, floor, limit: keep_all(values)),
 }
 METHODS = tuple(REJECTIONS)
+PARAMETERS = tuple(m.parameter for m in REJECTIONS.values() if m.parameter)
 
 
-def judge(values, method: str, floor: float, cut: float = 3.5):
-    """Apply the named method; fewer than three values are never judged, an unknown name is a UserError."""
-    test = REJECTIONS.get(method)
-    if test is None:
-        raise UserError(f"rejection method {method!r} is not known (known: {', '.join(METHODS)})")
+def _method(name: str) -> Method:
+    found = REJECTIONS.get(name)
+    if found is None:
+        raise UserError(f"rejection method {name!r} is not known (known: {', '.join(METHODS)})")
+    return found
+
+
+def limits(method: str, given: dict) -> dict:
+    """The parameter `method` takes ({} for none), its default filled in; `given` maps parameter names to
+    values or None.  One given for another method is a UserError naming the method it belongs to."""
+    m = _method(method)
+    for name, value in given.items():
+        if value is not None and name != m.parameter:
+            owner = next(k for k, v in REJECTIONS.items() if v.parameter == name)
+            raise UserError(f"--{name.replace('_', '-')} is for --rejection {owner}, not {method}"
+                            + (f" (its parameter is --{m.parameter.replace('_', '-')})" if m.parameter else
+                               " (it takes no parameter)"))
+    if m.parameter is None:
+        return {}
+    value = given.get(m.parameter)
+    return {m.parameter: m.default if value is None else value}
+
+
+def judge(values, method: str, floor: float, limit: float | None = None):
+    """Apply the named method (`limit`: its parameter, None for its default); fewer than three values are
+    never judged, an unknown name is a UserError."""
+    m = _method(method)
     if len(values) < 3:
         return keep_all(values)
-    return test(values, floor, cut)
+    return m.test(values, floor, m.default if limit is None else limit)

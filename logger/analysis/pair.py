@@ -107,7 +107,7 @@ def analyse_pair(decisions, profile, settings, summary: dict) -> Budget | None:
     fit = fit_levels(steady, sign, with_flat)
     if fit is not None and fit.sd is not None:
         for d, (rejected, score, reason) in zip(steady, outliers.judge(fit.resid, settings.rejection, step,
-                                                                       settings.z_cut)):
+                                                                       settings.rejection_limit)):
             d.score = score
             if rejected:
                 d.accepted, d.reason = False, reason

@@ -68,7 +68,7 @@ class DetectorSettings:
 
 @dataclass(frozen=True)
 class Seating:
-    index: int
+    index: int  # the seating's number, from 1 in the order seatings end (contract: "Seating numbers")
     t_start_s: float  # when the reading first held (the instrument came to rest)
     t_end_s: float  # when it stopped holding: the first reading that left it (or the end of the stream)
     value_mm: float  # robust time-weighted centre of the settled samples
@@ -112,7 +112,7 @@ class SeatingDetector:
         self._ct: list[float] = []  # samples since the reading came roughly to rest (see _coarse)
         self._cv: list[float] = []
         self._most_out = math.inf  # most-out oriented reading since the last seating ended
-        self.current_index: int | None = None  # index of the seating in progress, once seated
+        self.current_index: int | None = None  # number of the seating in progress, once seated
 
     # -- feeding --------------------------------------------------------
     def advance(self, t_s: float) -> None:
@@ -239,7 +239,7 @@ class SeatingDetector:
             self._sum = self._v[0]
             return
         self.state = SEATED
-        self.current_index = self.count
+        self.current_index = self.count + 1
         self._centre = held
 
     def _finish(self, t_end_s: float) -> Seating:
@@ -253,7 +253,7 @@ class SeatingDetector:
         keep = t >= t[0] + self.s.trim_fraction * (t_end - t[0])
         keep[-1] = True
         value, spread, n = robust_centre(v[keep], w[keep])
-        seating = Seating(self.count, float(t[0]), float(t_end), value, spread, n)
+        seating = Seating(self.count + 1, float(t[0]), float(t_end), value, spread, n)
         self.count += 1
         self.current_index = None
         return seating

@@ -11,7 +11,7 @@ and replay therefore give identical results for the same stream.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import asdict, dataclass
 
 import numpy as np
 from scipy import stats
@@ -31,7 +31,8 @@ from logger.analysis.uncertainty import Budget, Component, radius_budget, readin
 @dataclass(frozen=True)
 class AnalysisSettings:
     rejection: str = "modified-z"  # one of outliers.METHODS
-    z_cut: float = 3.5
+    z_cut: float | None = None  # modified-z only: the |M| beyond which a seating is rejected (default 3.5)
+    alpha: float | None = None  # grubbs only: the significance level (default 0.05)
     flat_first: int | None = None  # force the first N seatings to be the flat
     phase_gap_mm: float | None = None  # separation of surface from flat; default from the step
     max_spread_mm: float | None = None  # seatings wandering more than this are unsteady
@@ -40,6 +41,23 @@ class AnalysisSettings:
     label: str = ""
     pair: bool = False  # a mirror and its tool seated alternately: two levels without a flat are the two pieces
     abrasive_mm: float = 0.0  # grain of the last abrasive: how far the pair's two radii may differ
+
+    def __post_init__(self):
+        """The rejection method's own parameter, its default filled in; one meant for another method is an error."""
+        given = {name: getattr(self, name) for name in outliers.PARAMETERS}
+        for name, value in outliers.limits(self.rejection, given).items():
+            object.__setattr__(self, name, value)
+
+    @property
+    def rejection_limit(self) -> float | None:
+        """The value of the method's parameter (None when it takes none)."""
+        parameter = outliers.REJECTIONS[self.rejection].parameter
+        return None if parameter is None else getattr(self, parameter)
+
+    def as_dict(self) -> dict:
+        """For settings.json: every setting, but only the rejection parameter that applies."""
+        unused = set(outliers.PARAMETERS) - {outliers.REJECTIONS[self.rejection].parameter}
+        return {k: v for k, v in asdict(self).items() if k not in unused}
 
 
 @dataclass
@@ -115,7 +133,7 @@ def _analyse(seatings: list[Seating], profile: Profile, settings: AnalysisSettin
 
     summary["surface"] = _surface_sagittas(surf, zero, profile.indicator.sign)
     steady = [d for d in surf if d.accepted]
-    _apply(steady, outliers.judge([d.sagitta_mm for d in steady], settings.rejection, step, settings.z_cut))
+    _apply(steady, outliers.judge([d.sagitta_mm for d in steady], settings.rejection, step, settings.rejection_limit))
     good = [d for d in surf if d.accepted]
     if not good:
         summary.update(_zero_summary(zero), status="not estimable",
@@ -154,7 +172,7 @@ def _judge_flats(flats: list[Decision], surf: list[Decision], settings: Analysis
         resid = x - (icpt + slope * t)
     else:
         resid = x - np.median(x)
-    _apply(steady, outliers.judge(resid, settings.rejection, step, settings.z_cut))
+    _apply(steady, outliers.judge(resid, settings.rejection, step, settings.rejection_limit))
 
 
 def _surface_sagittas(surf: list[Decision], zero: Zero, sign: int) -> str:

@@ -19,7 +19,7 @@ from logger.errors import UserError
 from logger.config.profile import DEFAULT_U_MM, SENSES, load_profile, parse_profile
 from logger.run.writer import write_atomic
 from logger.analysis.uncertainty import Component, radius_budget, reading_components, seatings_needed
-from logger.units import check_unit, from_mm, to_mm
+from logger.units import UNITS, from_mm, to_mm
 
 
 def _echo_json(data: dict) -> None:
@@ -31,17 +31,22 @@ def _echo_json(data: dict) -> None:
 @click.option("--sagitta", type=POSITIVE, required=True, help="Reading relative to the flat zero, in the profile's unit.")
 @click.option("--surface", type=click.Choice(geometry.SURFACES), default="concave", show_default=True)
 @click.option("--scatter", type=NON_NEGATIVE, help="Standard deviation of single seatings (profile's unit): adds a budget.")
-@click.option("--seatings", type=int, help="How many seatings the sagitta is the mean of (with --scatter).")
+@click.option("--mean-of", "mean_of", type=int, metavar="N",
+              help="The sagitta is the mean of N seatings (with --scatter).")
+@click.option("--seatings", "old_seatings", type=int, hidden=True)
 @click.option("--zero-u", type=NON_NEGATIVE, help="Standard uncertainty of the zero (profile's unit), if known.")
 @click.option("--json", "as_json", is_flag=True, help="Print JSON for scripts.")
-def radius(profile_path, sagitta, surface, scatter, seatings, zero_u, as_json):
+def radius(profile_path, sagitta, surface, scatter, mean_of, old_seatings, zero_u, as_json):
     """Radius of curvature and focal length from one sagitta (feet correction included)."""
+    if old_seatings is not None:  # capture's stop-after-N; here the count of a mean has its own name
+        raise UserError(f"--seatings {old_seatings}: radius takes --mean-of {old_seatings} "
+                        "(the sagitta is the mean of that many seatings)")
     profile = load_profile(profile_path)
     unit = profile.unit
-    if (scatter is None) != (seatings is None):
-        raise UserError("--scatter and --seatings go together: give both or neither")
-    if seatings is not None and seatings < 2:
-        raise UserError(f"--seatings: a scatter needs at least 2 seatings, got {seatings}")
+    if (scatter is None) != (mean_of is None):
+        raise UserError("--scatter and --mean-of go together: give both or neither")
+    if mean_of is not None and mean_of < 2:
+        raise UserError(f"--mean-of: a scatter needs at least 2 seatings, got {mean_of}")
     s_mm = to_mm(sagitta, unit)
     ring_mm, foot_mm = profile.contact_mm(surface)
     try:
@@ -49,7 +54,7 @@ def radius(profile_path, sagitta, surface, scatter, seatings, zero_u, as_json):
     except UserError as exc:
         raise UserError(f"--sagitta {sagitta:g} {unit}: {exc}") from None
     q_mm = profile.indicator.resolution_mm
-    comps = reading_components(q_mm, None if scatter is None else to_mm(scatter, unit), seatings)
+    comps = reading_components(q_mm, None if scatter is None else to_mm(scatter, unit), mean_of)
     if zero_u is not None:
         comps.append(Component("zero (flat seatings)", to_mm(zero_u, unit)))
     budget = radius_budget(profile.spherometer, surface, s_mm, comps)
@@ -170,11 +175,13 @@ def profile_text(data: dict, comment: str) -> str:
 
 
 @click.command("new-profile")
-@click.option("--out", "out_path", required=True, help="Profile file to write (TOML).")
-@click.option("--unit", required=True, help="Unit of every length given here and in the file: mm or in.")
+@click.option("--out", "out_path", required=True, type=click.Path(dir_okay=False), metavar="FILE.toml",
+              help="The profile file to write (TOML).")
+@click.option("--unit", required=True, type=click.Choice(UNITS), help="Unit of every length given here and in the file.")
 @click.option("--outside", type=POSITIVE, nargs=3, help="Caliper readings outside-to-outside of each pair of balls.")
 @click.option("--inside", type=POSITIVE, nargs=3, help="Caliper readings inside-to-inside of each pair of balls.")
-@click.option("--centres", type=POSITIVE, nargs=3, help="Centre-to-centre distances of the balls.")
+@click.option("--leg-spacings", "--centres", "centres", type=POSITIVE, nargs=3, metavar="A B C",
+              help="The leg spacings: centre-to-centre distances of the balls (the profile's leg_spacings).")
 @click.option("--ball", type=POSITIVE, help="Ball diameter (three-ball; optional for --ring-radius).")
 @click.option("--ring-inner", type=POSITIVE, help="Ring spherometer: inner diameter of the ring.")
 @click.option("--ring-outer", type=POSITIVE, help="Ring spherometer: outer diameter of the ring.")
@@ -182,9 +189,9 @@ def profile_text(data: dict, comment: str) -> str:
 @click.option("--ring-radius", type=POSITIVE, help="A calibrated ring radius (e.g. from a reference sphere).")
 @click.option("--resolution", type=POSITIVE, required=True, help="One indicator count, in --unit.")
 @click.option("--sense", type=click.Choice(SENSES), default="in-positive", show_default=True)
-@click.option("--indicator-unit", help="Unit of stream lines that carry none (default: --unit).")
+@click.option("--indicator-unit", type=click.Choice(UNITS), help="Unit of stream lines that carry none (default: --unit).")
 @click.option("--name", default="", help="A label for the instrument.")
-@click.option("--force", is_flag=True, help="Replace FILE if it exists.")
+@click.option("--force", is_flag=True, help="Replace FILE.toml if it exists.")
 def new_profile(out_path, unit, outside, inside, centres, ball, ring_inner, ring_outer, edge_radius, ring_radius,
                 resolution, sense, indicator_unit, name, force):
     """Write a spherometer profile from caliper readings.
@@ -193,14 +200,13 @@ def new_profile(out_path, unit, outside, inside, centres, ball, ring_inner, ring
     diameter; inside-to-inside is the centre distance minus one (common practice).
     """
     out = Path(out_path)
-    unit = check_unit(unit, "--unit")
-    readings = {k: v for k, v in (("--outside", outside), ("--inside", inside), ("--centres", centres)) if v}
+    readings = {k: v for k, v in (("--outside", outside), ("--inside", inside), ("--leg-spacings", centres)) if v}
     ring_opts = {k: v for k, v in (("--ring-inner", ring_inner), ("--ring-outer", ring_outer),
                                    ("--edge-radius", edge_radius)) if v is not None}
     kinds = [k for k, used in (("three-ball", readings), ("ring", ring_opts), ("calibrated", ring_radius is not None))
              if used]
     if len(kinds) != 1 or len(readings) > 1:
-        raise UserError("give exactly one of --outside, --inside, --centres (three-ball), "
+        raise UserError("give exactly one of --outside, --inside, --leg-spacings (three-ball), "
                         "--ring-inner/--ring-outer (ring) or --ring-radius (calibrated)")
     kind = kinds[0]
     if kind == "three-ball":
@@ -209,7 +215,7 @@ def new_profile(out_path, unit, outside, inside, centres, ball, ring_inner, ring
             raise UserError("--ball: the ball diameter is needed for a three-ball spherometer")
         if option == "--outside" and min(values) <= ball:
             raise UserError(f"{option}: a reading of {min(values):g} {unit} is not larger than the ball diameter")
-        if option == "--centres":
+        if option == "--leg-spacings":
             sph = {"kind": kind, "leg_spacings": list(values), "ball_diameter": ball}
         else:  # kept as read: the legs then share the ball's error in the budget
             sph = {"kind": kind, "leg_readings": list(values), "readings": option[2:], "ball_diameter": ball}
@@ -227,7 +233,7 @@ def new_profile(out_path, unit, outside, inside, centres, ball, ring_inner, ring
         how = f"calibrated ring radius {ring_radius:g} {unit}"
     ind = {"resolution": resolution, "sense": sense}
     if indicator_unit is not None:
-        ind["unit"] = check_unit(indicator_unit, "--indicator-unit")
+        ind["unit"] = indicator_unit
     data = {**({"name": name} if name else {}), "unit": unit, "spherometer": sph, "indicator": ind}
     parse_profile(data, "new-profile options")  # every check the reader makes, before anything is written
     stamp = datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
@@ -236,6 +242,11 @@ def new_profile(out_path, unit, outside, inside, centres, ball, ring_inner, ring
         raise UserError(f"{out}: already exists (use --force to replace it)")
     write_atomic(out, text)
     load_profile(out)  # what was written reads back
-    r_mm, rho_mm = parse_profile(data).contact_mm("concave")
-    click.echo(f"wrote {out}: {kind}, ring radius {from_mm(r_mm, unit):.6g} {unit} (concave), "
-               f"foot radius {from_mm(rho_mm, unit):.6g} {unit}")
+    profile = parse_profile(data)
+    (r_mm, rho_mm), (r_convex_mm, _) = profile.contact_mm("concave"), profile.contact_mm("convex")
+    ring = f"ring radius {from_mm(r_mm, unit):.6g} {unit}"
+    if r_convex_mm != r_mm:  # a ring sits on its outer edge on a concave surface, its inner edge on a convex one
+        ring += f" on a concave surface, {from_mm(r_convex_mm, unit):.6g} {unit} on a convex one"
+    elif kind == "three-ball":
+        ring += " (the circle through the ball centres)"
+    click.echo(f"wrote {out}: {kind}, {ring}, foot radius {from_mm(rho_mm, unit):.6g} {unit}")

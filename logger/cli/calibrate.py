@@ -147,7 +147,8 @@ def _result(cal: Calibration, unit: str, out: Path) -> dict:
               help="Its standard uncertainty (k = 1): one for all or one per RUN_DIR [profile unit]; default 0.")
 @click.option("--reference-surface", multiple=True, type=click.Choice(geometry.SURFACES),
               help="Optional check: the reference is concave or convex (one for all or one per RUN_DIR).")
-@click.option("--out", "out_path", required=True, help="Calibrated profile to write (TOML).")
+@click.option("--out", "out_path", required=True, type=click.Path(dir_okay=False), metavar="FILE.toml",
+              help="The calibrated profile to write (TOML).")
 @click.option("--profile", "profile_path", default=None, metavar="FILE|NAME",
               help=PROFILE_HELP + " Default: the one each run was analysed with.")
 @click.option("--force", is_flag=True, help="Replace the output file if it exists.")

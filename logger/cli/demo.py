@@ -11,14 +11,15 @@ import click
 
 from logger.cli.options import terminal_watchers, view_option
 from logger.cli.stand import stand_options, stand_watchers
+from logger.live.capture import Stop
 from logger.live.demo import run_demo
 from logger.live.present import result_lines
 from logger.run.columns import RECORDING_FILE, REPORT_PICTURE, REPORT_TEXT
 
 
 @click.command("demo")
-@click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
-              help="Run folder (default: runs/demo-<time>).")
+@click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None, metavar="DIR",
+              help="The run folder to write (a folder; default runs/demo-<time>).")
 @view_option
 @stand_options
 def demo_cmd(out_dir, view, web, web_key, speak):
@@ -26,14 +27,16 @@ def demo_cmd(out_dir, view, web, web_key, speak):
 
     A 150 mm f/8 mirror in fine grinding (invented numbers): four seatings on
     the flat, ten on the mirror (one with grit under a foot), three on the
-    flat again.  Takes about a minute.
+    flat again.  Takes about a minute; Ctrl-C ends it early like a capture,
+    with the result so far and a complete run folder.
     """
     out = Path(out_dir) if out_dir else Path("runs") / time.strftime("demo-%Y%m%d-%H%M%S")
     click.echo("saglog demo: an invented 150 mm f/8 mirror, played by a virtual indicator on a pseudo-terminal")
     watchers, shown = terminal_watchers(view, "mm", "virtual indicator", bells=False)
     watchers += stand_watchers(web, web_key, speak, "mm", watchers[0])
+    stop = Stop.on_signals()
     with shown:
-        summary = run_demo(out, watchers)
+        summary = run_demo(out, watchers, stop)
     click.echo("")
     for line in result_lines(summary):
         click.echo(line)

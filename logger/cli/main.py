@@ -6,6 +6,7 @@ device that never appeared), never a traceback.
 
 from __future__ import annotations
 
+import difflib
 import importlib
 import sys
 
@@ -45,6 +46,28 @@ class SaglogGroup(click.Group):
             module, attr = COMMANDS[name].split(":")
             self.add_command(getattr(importlib.import_module(module), attr), name)
         return self.commands.get(name)
+
+    def parse_args(self, ctx, args):
+        """Bare `saglog` is a request for help, not an error: print it and end normally."""
+        if not args:
+            click.echo(ctx.get_help())
+            ctx.exit(0)
+        return super().parse_args(ctx, args)
+
+    def resolve_command(self, ctx, args):
+        """A mistyped command gets the nearest names ("did you mean ...?")."""
+        name = args[0] if args else ""
+        if name and not name.startswith("-") and self.get_command(ctx, name) is None:
+            near = difflib.get_close_matches(name, self.list_commands(ctx), n=2, cutoff=0.6)
+            hint = f"; did you mean {' or '.join(near)}?" if near else ""
+            raise click.UsageError(f"no command '{name}'{hint}", ctx)
+        return super().resolve_command(ctx, args)
+
+    def format_commands(self, ctx, formatter):
+        """The command list with each summary whole (its first sentence), wrapped rather than cut."""
+        rows = [(name, self.get_command(ctx, name).get_short_help_str(limit=1000)) for name in self.list_commands(ctx)]
+        with formatter.section("Commands"):
+            formatter.write_dl(rows)
 
     def main(self, *args, **kwargs):
         kwargs["standalone_mode"] = False

@@ -76,9 +76,14 @@ def analysis_options(f):
         click.option("--label", default="", help="Free text kept with the run, e.g. 'mirror' or 'tool'."),
         click.option("--rejection", type=click.Choice(METHODS), default="modified-z", show_default=True,
                      help="Outlier test within each phase."),
-        click.option("--z-cut", type=POSITIVE, default=3.5, show_default=True,
-                     help="Modified z-score beyond which a seating is rejected."),
-        click.option("--flat-first", type=click.IntRange(1), default=None,
+        click.option("--z-cut", type=POSITIVE, default=None,
+                     help="--rejection modified-z: the modified z-score beyond which a seating is rejected "
+                          "(default 3.5)."),
+        click.option("--alpha", type=click.FloatRange(0, 1, min_open=True, max_open=True), default=None,
+                     metavar="0<NUMBER<1",
+                     help="--rejection grubbs: the significance level of Grubbs' test (default 0.05). "
+                          "Chauvenet's criterion takes no parameter."),
+        click.option("--flat-first", type=click.IntRange(1), default=None, metavar="N",
                      help="Take the first N seatings as the flat, whatever they read (very shallow curves)."),
         click.option("--phase-gap", type=POSITIVE, default=None,
                      help="How far from the zero a seating must be to count as the surface [profile unit]; "
@@ -115,7 +120,7 @@ def analysis_options(f):
     return wrapper
 
 
-_ANALYSIS_KEYS = ("label", "rejection", "z_cut", "flat_first", "phase_gap", "max_spread", "settle", "band", "lift",
+_ANALYSIS_KEYS = ("label", "rejection", "z_cut", "alpha", "flat_first", "phase_gap", "max_spread", "settle", "band", "lift",
                   "target_radius", "focal_length", "focal_ratio", "diameter")
 
 
@@ -151,7 +156,7 @@ def run_settings_from(profile: Profile, kw: dict) -> RunSettings:
         profile.indicator.resolution_mm, settle_s=o["settle"], band_mm=mm(o["band"]),
         lift_mm=mm(o["lift"]))
     analysis = AnalysisSettings(
-        rejection=o["rejection"], z_cut=o["z_cut"], flat_first=o["flat_first"],
+        rejection=o["rejection"], z_cut=o["z_cut"], alpha=o["alpha"], flat_first=o["flat_first"],
         phase_gap_mm=mm(o["phase_gap"]), max_spread_mm=mm(o["max_spread"]),
         target_radius_mm=target, diameter_mm=diameter, label=o["label"], pair=o["pair"],
         abrasive_mm=mm(o["abrasive"]) or 0.0)

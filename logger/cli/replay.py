@@ -11,7 +11,8 @@ from logger.live.replay import replay_file
 
 @click.command("replay")
 @click.argument("recording", type=click.Path(dir_okay=False))
-@click.option("--out", "out_dir", required=True, type=click.Path(file_okay=False), help="Run folder to write.")
+@click.option("--out", "out_dir", required=True, type=click.Path(file_okay=False), metavar="DIR",
+              help="The run folder to write (a folder, made if missing).")
 @click.option("--rate", "rate_hz", type=POSITIVE, default=None, help="Lines per second of a plain capture (no timestamps).")
 @click.option("--force", is_flag=True, help="Overwrite a run folder that already holds a run.")
 @analysis_options

@@ -26,7 +26,7 @@ def report_command(run_dir: Path, unit: str | None):
 @click.command("history")
 @click.argument("run_dirs", nargs=-1, required=True, type=click.Path(file_okay=False, path_type=Path))
 @click.option("--out", "out", required=True, type=click.Path(dir_okay=False, path_type=Path),
-              help="Picture to write (FILE.png); the table goes to FILE.csv beside it.")
+              metavar="FILE.png", help="The picture to write (PNG); the table goes to FILE.csv beside it.")
 @click.option("--target-radius", type=POSITIVE, default=None,
               help="Radius of curvature wanted (default: from the runs' summaries).")
 @click.option("--tolerance", type=POSITIVE, default=None,

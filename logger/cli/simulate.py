@@ -16,16 +16,16 @@ from logger.simulator.serve import PtyServer, TcpServer
 
 @click.command("simulate")
 @click.option("--pty", "use_pty", is_flag=True, help="Serve on a pseudo-terminal; prints its path first.")
-@click.option("--tcp", "tcp_port", type=int, default=None, help="Serve on 127.0.0.1:PORT (0: any free port).")
+@click.option("--tcp", "tcp_port", type=click.IntRange(0, 65535), default=None, metavar="PORT", help="Serve on 127.0.0.1:PORT (0: any free port).")
 @click.option("--rec", "rec_path", type=click.Path(dir_okay=False), default=None,
               help="Write the whole run to a .rec recording at once (no real time).")
-@click.option("--scenario", default=None, help="Scenario name (shipped with saglog) or TOML file.")
-@click.option("--seed", type=int, default=None, help="Random seed (default: the scenario's).")
+@click.option("--scenario", default=None, metavar="NAME|FILE", help="Scenario name (shipped with saglog) or TOML file.")
+@click.option("--seed", type=int, default=None, metavar="N", help="Random seed (default: the scenario's).")
 @click.option("--rate", type=POSITIVE, default=None, help="Lines per second (overrides the scenario).")
 @click.option("--truth", "truth_path", type=click.Path(dir_okay=False), default=None,
               help="Write the run's truth (radius, seatings) as JSON.")
 @click.option("--speed", type=POSITIVE, default=1.0, show_default=True, help="Time factor (2: twice as fast).")
-@click.option("--link", "link_path", default=None, help="Also make a symlink to the pty at this path.")
+@click.option("--link", "link_path", default=None, metavar="PATH", help="Also make a symlink to the pty at this path.")
 def simulate_cmd(use_pty, tcp_port, rec_path, scenario, seed, rate, truth_path, speed, link_path):
     """A virtual dial indicator on a spherometer, streaming an invented session.
 

@@ -33,7 +33,8 @@ SENSES = ("in-positive", "out-positive")
 DEFAULT_U_MM = {
     "leg_spacing": 0.02 / math.sqrt(3),
     "ball_diameter": 0.02 / math.sqrt(3),
-    "ring_diameter": 0.02 / math.sqrt(3),
+    "inner_diameter": 0.02 / math.sqrt(3),
+    "outer_diameter": 0.02 / math.sqrt(3),
     "edge_radius": 0.025,
     "ring_radius": 0.01,
 }
@@ -48,7 +49,10 @@ _SPH_KEYS = {
     "calibrated": ({"kind", "ring_radius"}, {"ball_diameter"}),
 }
 _IND_KEYS = ({"resolution"}, {"sense", "unit"})
-_U_KEYS = set(DEFAULT_U_MM)
+# [uncertainty] keys are named for the [spherometer] key they apply to; an earlier key that stood for
+# several is still read: ring_diameter is both ring diameters (a stated specific one wins).
+_U_EARLIER = {"ring_diameter": ("inner_diameter", "outer_diameter")}
+_U_KEYS = set(DEFAULT_U_MM) | set(_U_EARLIER)
 
 
 @dataclass(frozen=True)
@@ -110,8 +114,11 @@ class Spherometer:
     def describe(self, unit: str = "mm") -> str:
         from logger.units import from_mm
 
-        parts = ", ".join(f"{k} {from_mm(v, unit):g}" for k, v in self.params_mm.items())
-        return f"{self.kind} ({parts} {unit})"
+        shown = {k: f"{from_mm(v, unit):g} {unit}" for k, v in self.params_mm.items()}
+        legs = [shown.pop(k) for k in ("a", "b", "c") if k in shown]
+        parts = ([f"leg spacings a, b, c {', '.join(legs)}"] if legs else []) + [
+            f"{k.replace('_', ' ')} {v}" for k, v in shown.items()]
+        return f"{self.kind} ({'; '.join(parts)})"
 
 
 @dataclass(frozen=True)
@@ -179,8 +186,12 @@ def _uncertainties(data: dict, unit: str, source: str) -> dict[str, float]:
     if not isinstance(ut, dict):
         raise UserError(f"{source}: [uncertainty] must be a table")
     _check_keys(ut, set(), _U_KEYS, f"{source}: [uncertainty]")
-    return {k: (_length(ut[k], unit, f"{source}: [uncertainty] {k}", allow_zero=True) if k in ut else DEFAULT_U_MM[k])
-            for k in _U_KEYS}
+    stated = {k: _length(v, unit, f"{source}: [uncertainty] {k}", allow_zero=True) for k, v in ut.items()}
+    for earlier, keys in _U_EARLIER.items():
+        for k in keys:
+            if earlier in stated and k not in stated:
+                stated[k] = stated[earlier]
+    return {k: stated.get(k, default) for k, default in DEFAULT_U_MM.items()}
 
 
 def _three_ball(sph: dict, unit: str, where: str, u_of: dict) -> tuple[dict, dict]:
@@ -227,7 +238,7 @@ def _ring(sph: dict, unit: str, where: str, u_of: dict) -> tuple[dict, dict]:
         raise UserError(f"{where} inner_diameter must be smaller than outer_diameter")
     if params["inner_diameter"] / 2 + params["edge_radius"] > params["outer_diameter"] / 2 - params["edge_radius"]:
         raise UserError(f"{where} edge_radius is too large for the ring's wall")
-    return params, {"inner_diameter": u_of["ring_diameter"], "outer_diameter": u_of["ring_diameter"],
+    return params, {"inner_diameter": u_of["inner_diameter"], "outer_diameter": u_of["outer_diameter"],
                     "edge_radius": u_of["edge_radius"]}
 
 

@@ -13,6 +13,7 @@ Exit status: 0 normal end, 2 a user error, 3 the device never appeared.
 from __future__ import annotations
 
 import contextlib
+import signal
 import time
 from pathlib import Path
 from typing import Sequence
@@ -45,6 +46,14 @@ class Stop:
 
     def __call__(self, signum, frame):
         self.requested = True
+
+    @classmethod
+    def on_signals(cls) -> "Stop":
+        """A Stop that Ctrl-C (SIGINT) and SIGTERM set: every command that captures ends the same way."""
+        stop = cls()
+        signal.signal(signal.SIGTERM, stop)
+        signal.signal(signal.SIGINT, stop)
+        return stop
 
 
 def _open_with_wait(src: SerialSource, wait_s: float, stop: Stop, on_wait) -> None:

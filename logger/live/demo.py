@@ -13,7 +13,7 @@ from typing import Sequence
 
 from logger.analysis.seating import DetectorSettings
 from logger.analysis.session import AnalysisSettings
-from logger.live.capture import capture
+from logger.live.capture import Stop, capture
 from logger.live.listener import Listener
 from logger.live.pipeline import RunSettings
 from logger.simulator import PtyServer, load_scenario, simulate
@@ -24,8 +24,9 @@ DIAMETER_MM = 150.0
 DEMO_LABEL = "150 mm f/8 mirror (invented demo)"
 
 
-def run_demo(out_dir: Path, listeners: Sequence[Listener] = ()) -> dict:
-    """Serve the demo scenario on a pty and capture it into `out_dir`, told to `listeners`; returns the summary."""
+def run_demo(out_dir: Path, listeners: Sequence[Listener] = (), stop: Stop | None = None) -> dict:
+    """Serve the demo scenario on a pty and capture it into `out_dir`, told to `listeners`, until it ends or
+    `stop` is set; returns the summary."""
     scenario = load_scenario(DEMO_SCENARIO)
     profile = scenario.profile
     run = simulate(scenario)
@@ -36,4 +37,4 @@ def run_demo(out_dir: Path, listeners: Sequence[Listener] = ()) -> dict:
     duration_s = run.duration_s + 1.0  # real time: the seatings last as long as at the stand
     with server:  # starts serving; the scenario clock starts when the capture opens the device
         return capture(server.path, profile, settings, out_dir, listeners=listeners, duration_s=duration_s,
-                       wait_s=5.0)
+                       wait_s=5.0, stop=stop)

@@ -1,7 +1,8 @@
 """The live panel on a terminal: a rich panel redrawn in place about five times a second.
 
-The radius stands in large block digits so it reads from two metres; below
-it the state, the reading, the counts, the last verdict and the result.
+The radius stands in large block digits so it reads from two metres (scaled to
+the panel's width: the wider the terminal, the larger); below it the state, the
+reading, the counts, the last verdict and the result.
 """
 
 from __future__ import annotations
@@ -32,18 +33,30 @@ _GLYPHS = {
 }
 
 
-def big_digits(text: str) -> str:
-    rows = ["", "", "", "", ""]
+SCALES = (4, 3, 2, 1)  # block sizes, largest first: each glyph cell becomes `scale` columns wide
+
+
+def big_digits(text: str, scale: int = 1) -> str:
+    """`text` in the 3x5 block font, each cell `scale` columns wide and (scale + 1) // 2 rows tall, so the
+    digits keep their shape (a terminal cell is about twice as tall as it is wide)."""
+    tall = (scale + 1) // 2
+    rows = [""] * 5
     for ch in text:
         g = _GLYPHS.get(ch, _GLYPHS[" "])
         for i in range(5):
-            rows[i] += g[i] + " "
-    return "\n".join(rows)
+            rows[i] += "".join(c * scale for c in g[i]) + " " * scale
+    return "\n".join(row.rstrip() for row in rows for _ in range(tall))
 
 
-def phase_text(summary: dict) -> str:
+def scale_for(text: str, width: int) -> int:
+    """The largest block size at which `text` fits in `width` columns (1 when nothing larger does)."""
+    return next((s for s in SCALES if len(text) * 4 * s - s <= width), 1)
+
+
+def phase_text(summary: dict, last_phase: str | None = None) -> str:
+    """What the person at the stand is doing now: a flat seated after the surface checks the zero."""
     if summary.get("seatings_surface"):
-        return "measuring the surface"
+        return "checking the zero on the flat (drift)" if last_phase == "flat" else "measuring the surface"
     if summary.get("seatings_flat"):
         return "zero set - seat the surface (or the flat again)"
     return "zeroing on the flat"
@@ -87,13 +100,14 @@ class LivePanel(RunStatus):
     def _render(self):
         s, u = self.summary, self.unit
         radius = s.get("radius_mm")
-        big = big_digits(f"{from_mm(radius, u):.1f}" if radius is not None else "-")
+        number = f"{from_mm(radius, u):.1f}" if radius is not None else "-"
+        big = big_digits(number, scale_for(number, self.console.width - 4))  # inside the border and padding
         t = Table.grid(padding=(0, 2))
         t.add_column(style="bold")
         t.add_column()
         t.add_row("state", Text(str(self.current).upper(), style="reverse bold" if self.current == "seated" else "bold"))
         t.add_row("reading", length_text(self.value_mm, u, 4) if self.value_mm is not None else "-")
-        t.add_row("phase", phase_text(s))
+        t.add_row("phase", phase_text(s, self.last_phase))
         t.add_row("seatings", f"{s.get('seatings_flat', 0)} flat, {s.get('seatings_surface', 0)} surface, "
                               f"{s.get('seatings_rejected', 0)} rejected")
         t.add_row("last", self.last_event or "-")
@@ -105,7 +119,7 @@ class LivePanel(RunStatus):
         fr = s.get("focal_ratio")
         t.add_row("focal length", length_text(s.get("focal_length_mm"), u, 1) + (f"   f/{fr:.2f}" if fr else ""))
         if s.get("target_radius_mm") is not None:
-            t.add_row("to go", f"radius {length_text(s.get('radius_to_go_mm'), u, 1)}, "
-                               f"sagitta at the ring {length_text(s.get('sagitta_to_go_mm'), u, 5)}")
+            t.add_row("still to go", f"radius {length_text(s.get('radius_to_go_mm'), u, 1)}, "
+                                     f"sagitta {length_text(s.get('sagitta_to_go_mm'), u, 5)} (as this spherometer reads)")
         return Panel(Group(Text(big, style="bold"), Text(f"radius of curvature [{u}]"), t),
                      title=f"saglog  {self.device}", border_style="bold")

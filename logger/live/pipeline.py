@@ -40,7 +40,7 @@ class RunSettings:
                     spherometer=dict(kind=profile.spherometer.kind, params_mm=profile.spherometer.params_mm,
                                      u_mm=profile.spherometer.u_mm),
                     indicator=asdict(profile.indicator), detector=asdict(self.detector),
-                    analysis=asdict(self.analysis), source=self.source)
+                    analysis=self.analysis.as_dict(), source=self.source)
 
 
 class Pipeline:
@@ -156,8 +156,8 @@ class Pipeline:
         if lines == 0:
             s.update(status="no readings", message="Nothing was received.")
         elif self.decoder.good == 0:
-            s.update(status="no readings",
-                     message=f"All {lines} lines were unreadable: check the baud rate and the cable.")
+            s.update(status="no readings", message=f"All {lines} lines were bad lines (no reading in them): "
+                                                   "check the baud rate and the cable.")
         return s
 
     def _seating(self, seating: Seating) -> None:
@@ -169,7 +169,7 @@ class Pipeline:
         self._tell_seating(seating)
 
     def _tell_seating(self, seating: Seating) -> None:
-        decision, summary = self.result.decisions[seating.index], self.summary
+        decision, summary = self.result.decisions[seating.index - 1], self.summary
         for lst in self.listeners:
             lst.seating(decision, summary)
 

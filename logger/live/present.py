@@ -6,20 +6,21 @@ from logger.units import from_mm
 
 
 def length_text(x_mm, unit: str, digits: int = 4) -> str:
+    """`0.3403 mm`; a value that rounds to zero shows as 0 without a sign (never -0.0000)."""
     if x_mm is None:
         return "not estimable"
     d = digits + 1 if unit == "in" else digits
-    return f"{from_mm(x_mm, unit):.{d}f} {unit}"
+    return f"{from_mm(x_mm, unit) + 0.0:.{d}f} {unit}".replace(f"-{0:.{d}f} ", f"{0:.{d}f} ")
 
 
 def result_lines(summary: dict) -> list[str]:
     """The few lines a person wants at the end of a run."""
     unit = summary.get("unit") or "mm"
-    out = [f"status: {summary.get('status')} - {summary.get('message')}"]
+    out = [f"{summary.get('status')}: {summary.get('message')}"]
     out.append(
         f"seatings: {summary.get('seatings_flat', 0)} flat, {summary.get('seatings_surface', 0)} surface accepted, "
-        f"{summary.get('seatings_rejected', 0)} rejected; lines {summary.get('lines', 0)}, "
-        f"unreadable {summary.get('bad_lines', 0)}"
+        f"{summary.get('seatings_rejected', 0)} rejected; {summary.get('bad_lines', 0)} bad lines of "
+        f"{summary.get('lines', 0)}"
     )
     if summary.get("zero_mm") is not None:
         drift = summary.get("drift_mm_per_min") or 0.0
@@ -45,6 +46,6 @@ def result_lines(summary: dict) -> list[str]:
         out.append(f"calibration: {summary['calibration_note']}")
     if summary.get("target_radius_mm") is not None and summary.get("radius_to_go_mm") is not None:
         out.append(f"target radius {length_text(summary['target_radius_mm'], unit, 1)}: "
-                   f"radius to go {length_text(summary['radius_to_go_mm'], unit, 1)}, "
-                   f"sagitta to go at the ring {length_text(summary['sagitta_to_go_mm'], unit, 5)}")
+                   f"radius still to go {length_text(summary['radius_to_go_mm'], unit, 1)}, "
+                   f"sagitta still to go {length_text(summary['sagitta_to_go_mm'], unit, 5)}")
     return out

@@ -9,7 +9,7 @@ from logger.live.listener import Listener, Sample
 def verdict_text(decision) -> str:
     """`seating 3 on the flat: accepted` -- the same words on every screen and in the log."""
     verdict = "accepted" if decision.accepted else f"rejected ({decision.reason})"
-    return f"seating {decision.seating.index + 1} on the {decision.phase}: {verdict}"
+    return f"seating {decision.seating.index} on the {decision.phase}: {verdict}"
 
 
 class RunStatus(Listener):
@@ -20,6 +20,7 @@ class RunStatus(Listener):
         self.value_mm: float | None = None
         self.summary: dict = {}
         self.last_event = ""
+        self.last_phase: str | None = None  # the phase of the latest seating: a flat after the surface checks the zero
 
     def sample(self, sample: Sample) -> None:
         if sample.value_mm is not None:
@@ -34,3 +35,4 @@ class RunStatus(Listener):
     def seating(self, decision, summary: dict) -> None:
         self.summary = summary
         self.last_event = verdict_text(decision)
+        self.last_phase = decision.phase

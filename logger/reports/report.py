@@ -68,14 +68,28 @@ def _spherometer_text(s: dict, unit: str) -> str:
     parts = []
     if sph.get("kind"):
         parts.append(Spherometer(kind=sph["kind"], params_mm=dict(sph.get("params_mm") or {})).describe(unit))
-    for key, name in (("ring_radius_mm", "ring radius"), ("foot_radius_mm", "foot radius"), ("resolution_mm", "one count")):
+    for key, name in (("ring_radius_mm", "ring radius"), ("foot_radius_mm", "foot radius")):
         if is_number(s.get(key)):
             parts.append(f"{name} {fmt_len(s[key], unit)}")
+    q = s.get("resolution_mm")
+    if is_number(q):  # positional digits: an inch count reads 0.0000394 in, not 3.93701e-05
+        shown = np.format_float_positional(from_mm(q, unit), precision=3, unique=False, fractional=False, trim="-")
+        parts.append(f"one count {shown} {unit}" + (f" ({fmt_len(q, 'mm')})" if unit != "mm" else ""))
     return ", ".join(parts) or "not recorded"
 
 
 def _settings_text(settings: dict) -> str:
-    return ", ".join(f"{k}={v}" for k, v in settings.items() if not isinstance(v, (dict, list))) or "defaults"
+    """settings.json in words: the version, the profile and its unit, the rejection method and its parameter."""
+    parts = [f"saglog {settings['saglog_version']}"] if settings.get("saglog_version") else []
+    if settings.get("profile"):
+        parts.append(f"profile {settings['profile']}" + (f" (in {settings['profile_unit']})"
+                                                          if settings.get("profile_unit") else ""))
+    analysis = settings.get("analysis") or {}
+    if analysis.get("rejection"):
+        limit = ", ".join(f"{name.replace('_', ' ')} {analysis[name]:g}" for name in ("z_cut", "alpha")
+                          if is_number(analysis.get(name)))
+        parts.append(f"rejection {analysis['rejection']}" + (f" ({limit})" if limit else ""))
+    return ", ".join(parts) or "defaults"
 
 
 def header_lines(run: Run, unit: str) -> list[str]:
@@ -91,7 +105,7 @@ def header_lines(run: Run, unit: str) -> list[str]:
         r_line += f"   f/{s['focal_ratio']:.2f}"
     target = ""
     if is_number(s.get("target_radius_mm")):
-        target = f"target R {fmt_len(s['target_radius_mm'], unit)}, R still to go {fmt_len(s.get('radius_to_go_mm'), unit, 4)}"
+        target = f"target R {fmt_len(s['target_radius_mm'], unit)}, radius still to go {fmt_len(s.get('radius_to_go_mm'), unit, 4)}"
         if is_number(s.get("sagitta_to_go_mm")):
             target += f", sagitta still to go {fmt_len(s['sagitta_to_go_mm'], unit, 4)}"
     drift = _num(s, "drift_mm_per_min")
@@ -102,8 +116,8 @@ def header_lines(run: Run, unit: str) -> list[str]:
     if math.isfinite(drift):
         z_line += f", drift {from_mm(drift, unit):+.3g} {unit}/min ({s.get('drift_model') or 'no model'})"
     counts = (
-        f"seatings: {s.get('seatings_flat', 'n/a')} flat + {s.get('seatings_surface', 'n/a')} "
-        f"{s.get('surface') or 'surface'} accepted, {s.get('seatings_rejected', 'n/a')} rejected"
+        f"seatings: {s.get('seatings_flat', 'n/a')} flat, {s.get('seatings_surface', 'n/a')} "
+        f"surface accepted, {s.get('seatings_rejected', 'n/a')} rejected"
         f" ({s.get('rejection') or 'no method'}) of {s.get('seatings_total', 'n/a')}"
         f"; {s.get('bad_lines', 'n/a')} bad lines of {s.get('lines', 'n/a')}"
     )

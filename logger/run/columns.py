@@ -18,7 +18,7 @@ class Column:
 
 
 SEATINGS_COLUMNS = (
-    Column("index", "int", "seating number, in time order"),
+    Column("index", "int", "seating number, from 1 in the order seatings end"),
     Column("start", "time", "when the spherometer came to rest (ISO 8601 UTC)"),
     Column("end", "time", "when it was lifted again: the first reading that left it (ISO 8601 UTC)"),
     Column("t_start_s", "float", "`start` as seconds since the start of the stream"),

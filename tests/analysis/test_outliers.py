@@ -53,6 +53,38 @@ def test_grubbs_finds_a_planted_outlier_and_only_it():
     assert [i for i, (r, _, _) in enumerate(verdicts) if r] == [5]
 
 
+def test_grubbs_takes_its_significance_level():
+    # A value whose G lies between the two-sided critical values at alpha 0.05 and 0.01 (both from the
+    # NIST/SEMATECH e-Handbook 1.3.5.17 formula, written here with scipy's t quantile) is an outlier
+    # at the first level and not at the second.
+    n = 10
+
+    def critical(alpha):
+        t = stats.t.ppf(1 - alpha / (2 * n), n - 2)
+        return (n - 1) / math.sqrt(n) * math.sqrt(t * t / (n - 2 + t * t))
+
+    g_05, g_01 = critical(0.05), critical(0.01)
+    assert g_05 < g_01
+    base = np.linspace(-1, 1, n - 1)
+    for x_far in np.linspace(1.0, 10.0, 2000):  # the far value whose G is midway between the two
+        x = np.append(base, x_far)
+        g = abs(x_far - x.mean()) / x.std(ddof=1)
+        if g > (g_05 + g_01) / 2:
+            break
+    assert g_05 < g < g_01
+    assert outliers.judge(list(x), "grubbs", 1e-9)[-1][0]  # default level 0.05
+    assert outliers.judge(list(x), "grubbs", 1e-9, 0.05)[-1][0]
+    assert not outliers.judge(list(x), "grubbs", 1e-9, 0.01)[-1][0]
+
+
+def test_a_parameter_for_another_method_is_refused():
+    assert outliers.limits("grubbs", {"z_cut": None, "alpha": None}) == {"alpha": 0.05}
+    assert outliers.limits("modified-z", {"z_cut": 4.0, "alpha": None}) == {"z_cut": 4.0}
+    assert outliers.limits("chauvenet", {"z_cut": None, "alpha": None}) == {}
+    with pytest.raises(UserError, match=r"^--z-cut is for --rejection modified-z, not grubbs \(its parameter is --alpha\)$"):
+        outliers.limits("grubbs", {"z_cut": 3.0})
+
+
 def test_chauvenet_threshold():
     # Chauvenet: reject when n * P(|Z| >= z) < 1/2; for n = 10 the cut is z = 1.96 (Taylor,
     # "An Introduction to Error Analysis", ch. 6; the value follows from scipy.stats.norm)

@@ -105,11 +105,11 @@ def test_plan_json_matches_exact_construction(case, N, D_frac):
 
 
 def test_radius_human_output_and_budget():
-    res = run("radius", "--profile", EXAMPLE, "--sagitta", "0.5", "--scatter", "0.002", "--seatings", "10")
+    res = run("radius", "--profile", EXAMPLE, "--sagitta", "0.5", "--scatter", "0.002", "--mean-of", "10")
     assert res.exit_code == 0, res.stderr
     assert "radius of curvature" in res.stdout and "Uncertainty budget" in res.stdout
     assert "seating scatter" in res.stdout and "leg spacing a" in res.stdout and "expanded uncertainty U" in res.stdout
-    out = ok_json("radius", "--profile", EXAMPLE, "--sagitta", "0.5", "--scatter", "0.002", "--seatings", "10")
+    out = ok_json("radius", "--profile", EXAMPLE, "--sagitta", "0.5", "--scatter", "0.002", "--mean-of", "10")
     assert out["budget"]["nu_eff"] > 9 and out["radius_U"] == pytest.approx(out["budget"]["U_mm"])
     # Source: GUM 4.2.3, s/sqrt(n) with n - 1 dof.
     (scatter,) = [c for c in out["budget"]["components"] if c["name"] == "seating scatter"]
@@ -162,7 +162,7 @@ def _new(tmp_path, *args, name="new.toml"):
     return run("new-profile", "--out", tmp_path / name, *args)
 
 
-@pytest.mark.parametrize("how,offset", [("--outside", -6.35), ("--inside", 6.35), ("--centres", 0.0)])
+@pytest.mark.parametrize("how,offset", [("--outside", -6.35), ("--inside", 6.35), ("--leg-spacings", 0.0), ("--centres", 0.0)])
 def test_new_profile_from_caliper_readings_round_trips(tmp_path, how, offset):
     # Source: common practice: outside-to-outside = centre distance + one ball diameter,
     # inside-to-inside = centre distance - one ball diameter.
@@ -170,6 +170,8 @@ def test_new_profile_from_caliper_readings_round_trips(tmp_path, how, offset):
         else [70.02, 69.98, 70.01]
     res = _new(tmp_path, "--unit", "mm", how, *readings, "--ball", "6.35", "--resolution", "0.001")
     assert res.exit_code == 0, res.stderr
+    # a three-ball instrument has one ring radius, the circle through the ball centres, whatever the surface
+    assert "(the circle through the ball centres)" in res.stdout and "concave" not in res.stdout
     p = load_profile(tmp_path / "new.toml")
     assert list(p.spherometer.legs_mm()) == pytest.approx([x + offset for x in readings], abs=1e-9)
     assert p.spherometer.params_mm["ball_diameter"] == 6.35 and p.indicator.resolution_mm == 0.001
@@ -187,6 +189,8 @@ def test_new_profile_ring_and_calibrated_in_inches(tmp_path):
     res = _new(tmp_path, "--unit", "in", "--ring-inner", "2.75", "--ring-outer", "3", "--edge-radius", "0.01",
                "--resolution", "0.00005", "--indicator-unit", "in", "--name", "my \"ring\"")
     assert res.exit_code == 0, res.stderr
+    # a ring sits on its outer edge on a concave surface (3/2 - 0.01), its inner edge on a convex one (2.75/2 + 0.01)
+    assert "ring radius 1.49 in on a concave surface, 1.385 in on a convex one" in res.stdout
     p = load_profile(tmp_path / "new.toml")
     ref = load_profile(RING_IN)
     assert (p.spherometer.kind, p.spherometer.params_mm) == ("ring", ref.spherometer.params_mm)
@@ -211,7 +215,7 @@ def test_new_profile_refuses_to_overwrite_unless_forced(tmp_path):
 
 
 NEW_BAD = [
-    (("--unit", "cm", "--centres", 70, 70, 70, "--ball", 6, "--resolution", 0.001), ["--unit", "unknown unit"]),
+    (("--unit", "cm", "--centres", 70, 70, 70, "--ball", 6, "--resolution", 0.001), ["--unit", "'cm' is not one of"]),
     (("--unit", "mm", "--centres", 10, 10, 30, "--ball", 1, "--resolution", 0.001), ["triangle"]),
     (("--unit", "mm", "--outside", 5, 70, 70, "--ball", 6, "--resolution", 0.001), ["--outside"]),
     (("--unit", "mm", "--centres", 70, 70, 70, "--ball", -6, "--resolution", 0.001), ["--ball"]),
@@ -264,9 +268,11 @@ CMD_BAD = [
     (("radius", "--profile", EXAMPLE), ["--sagitta"]),
     (("radius", "--sagitta", "0.5"), ["--profile"]),
     (("radius", "--profile", EXAMPLE, "--sagitta", "0.5", "--surface", "flat"), ["--surface"]),
-    (("radius", "--profile", EXAMPLE, "--sagitta", "0.5", "--scatter", "0.002"), ["--seatings"]),
-    (("radius", "--profile", EXAMPLE, "--sagitta", "0.5", "--scatter", "0.002", "--seatings", "1"), ["--seatings"]),
-    (("radius", "--profile", EXAMPLE, "--sagitta", "0.5", "--scatter", "-1", "--seatings", "5"), ["--scatter"]),
+    (("radius", "--profile", EXAMPLE, "--sagitta", "0.5", "--scatter", "0.002"), ["--mean-of"]),
+    (("radius", "--profile", EXAMPLE, "--sagitta", "0.5", "--scatter", "0.002", "--mean-of", "1"), ["--mean-of"]),
+    # capture's stop-after-N is not the count of a mean: the old spelling says which name to use
+    (("radius", "--profile", EXAMPLE, "--sagitta", "0.5", "--scatter", "0.002", "--seatings", "5"), ["--mean-of 5"]),
+    (("radius", "--profile", EXAMPLE, "--sagitta", "0.5", "--scatter", "-1", "--mean-of", "5"), ["--scatter"]),
     (("radius", "--profile", EXAMPLE, "--sagitta", "0.5", "--zero-u", "-1"), ["--zero-u"]),
     (("plan", "--profile", EXAMPLE, "--diameter", "200", "--focal-ratio", "0"), ["--focal-ratio"]),
     (("plan", "--profile", EXAMPLE, "--diameter", "200", "--focal-ratio", "-5"), ["--focal-ratio"]),

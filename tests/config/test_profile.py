@@ -122,3 +122,16 @@ def test_missing_and_unreadable_files(tmp_path):
         load_profile(tmp_path / "bin.toml")
     with pytest.raises(UserError, match="cannot read profile"):
         load_profile(tmp_path)  # a directory
+
+
+def test_ring_uncertainty_keys_are_named_for_the_profile_keys():
+    from logger.config.profile import parse_profile
+
+    def u(stated):
+        return parse_profile({"unit": "mm", "spherometer": {"kind": "ring", "inner_diameter": 70.0,
+                                                            "outer_diameter": 76.0},
+                              "indicator": {"resolution": 0.001}, "uncertainty": stated}, "t").spherometer.u_mm
+    got = u({"inner_diameter": 0.003, "outer_diameter": 0.004})
+    assert (got["inner_diameter"], got["outer_diameter"]) == (0.003, 0.004)
+    got = u({"ring_diameter": 0.005, "outer_diameter": 0.004})  # the earlier key sets both; the specific one wins
+    assert (got["inner_diameter"], got["outer_diameter"]) == (0.005, 0.004)

@@ -307,7 +307,7 @@ def test_capture_through_the_emulated_bridge_gives_the_sessions_radius(tmp_path)
     # capture is ended as a user ends one, by Ctrl-C once the session is over; --duration is a bound.
     cap = subprocess.Popen([sys.executable, "-m", "logger", "capture", "--port", bridge.path, "--profile",
                             str(EXAMPLE_PROFILE), "--out", str(out), "--duration", f"{3 * length_s:.0f}",
-                            "--baud", "115200", "--quiet", "--view", "plain"],
+                            "--baud", "115200", "--no-bells", "--view", "plain"],
                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
                            env=dict(os.environ, PYTHONPATH=str(ROOT)))
     try:

@@ -79,11 +79,11 @@ def write_run(
     s_true = geometry.probe_sagitta_mm(radius_true_mm, r, rho, "concave")
     zero0, drift_per_min = 0.012, 0.0006  # invented
     phases = ["flat"] * 3 + ["surface"] * n_surface + ["flat"] * 2
-    grit = 3 + n_surface // 2 if outlier else -1
+    grit = 4 + n_surface // 2 if outlier else -1  # seating numbers from 1
     samples, seatings = [], []
     t = 0.0
     dt = 1.0 / rate_hz
-    for i, phase in enumerate(phases):
+    for i, phase in enumerate(phases, start=1):
         for state, dur in (("lifted", 2.0), ("settling", 1.0), ("seated", seated_s)):
             seated = []
             for _ in range(int(round(dur * rate_hz))):

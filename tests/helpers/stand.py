@@ -64,7 +64,7 @@ def saglog_env() -> dict:
 def start_capture(port: str, out, *extra) -> tuple[subprocess.Popen, str]:
     """`saglog capture --web ...` in a subprocess; returns it and the URL from its `page:` line."""
     proc = subprocess.Popen([sys.executable, "-m", "logger", "capture", "--port", str(port), "--out", str(out),
-                             "--view", "plain", "--quiet", *map(str, extra)], env=saglog_env(), cwd=ROOT,
+                             "--view", "plain", "--no-bells", *map(str, extra)], env=saglog_env(), cwd=ROOT,
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
     line = proc.stdout.readline()
     if not line.startswith("page: "):

@@ -142,31 +142,38 @@ def test_capture_over_socket_url(tmp_path):
                                                                        c["expected_accepted_surface"])
 
 
-def _capture_process(port, out, *extra):
+def _capture_process(port, out, *extra, bells=("--no-bells",)):
     env = dict(os.environ, PYTHONPATH=str(ROOT))
     return subprocess.Popen([sys.executable, "-m", "logger", "capture", "--port", str(port), "--profile",
-                             str(EXAMPLE_PROFILE), "--out", str(out), "--quiet", *extra],
+                             str(EXAMPLE_PROFILE), "--out", str(out), *bells, *extra],
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env)
 
 
+def wait_for_a_seating(out, timeout_s=60.0) -> None:
+    """Until the first seating is in the run folder's summary (a bound, not a timing)."""
+    deadline = time.monotonic() + timeout_s
+    while time.monotonic() < deadline:
+        try:
+            if json.loads((out / "summary.json").read_text())["seatings_total"] >= 1:
+                return
+        except (OSError, ValueError, KeyError):
+            pass
+        time.sleep(0.1)
+
+
 def test_sigint_and_sigterm_end_cleanly_with_the_summary(tmp_path):
-    for sig in (signal.SIGINT, signal.SIGTERM):
+    # the bells (BEL on stderr): off by --no-bells, by its earlier name --quiet, on without either
+    for sig, bells in ((signal.SIGINT, ("--no-bells",)), (signal.SIGTERM, ("--quiet",)), (signal.SIGINT, ())):
         run = short_session()
-        out = tmp_path / sig.name
+        out = tmp_path / f"{sig.name}{len(bells)}{''.join(bells)}"
         with PtyServer(run) as server:
-            proc = _capture_process(server.path, out)
-            deadline = time.monotonic() + 30
-            while time.monotonic() < deadline:  # until the first seating is in the summary
-                try:
-                    if json.loads((out / "summary.json").read_text())["seatings_total"] >= 1:
-                        break
-                except (OSError, ValueError, KeyError):
-                    pass
-                time.sleep(0.1)
+            proc = _capture_process(server.path, out, bells=bells)
+            wait_for_a_seating(out)
             proc.send_signal(sig)
             stdout, stderr = proc.communicate(timeout=30)
         assert proc.returncode == 0, stderr
         assert "Traceback" not in stderr and "run folder:" in stdout
+        assert ("\a" in stderr) == (not bells)
         summary = json.loads((out / "summary.json").read_text())
         assert summary["seatings_total"] >= 1 and summary["ended_utc"]
         assert (out / "stream.rec").read_text().rstrip().splitlines()[-1].startswith("# end ")

@@ -3,8 +3,13 @@
 from __future__ import annotations
 
 import json
+import os
+import signal
+import subprocess
+import sys
 
-from tests.helpers.paths import run_saglog
+from tests.helpers.paths import ROOT, run_saglog
+from tests.live.test_capture import ISO_LINE, wait_for_a_seating
 from logger.simulator import load_scenario, simulate
 
 
@@ -27,3 +32,21 @@ def test_demo_runs_the_whole_job(tmp_path):
     assert abs(summary["radius_mm"] - truth["radius_mm"]) <= summary["radius_U_mm"]
     for name in ("stream.rec", "samples.csv", "seatings.csv", "settings.json"):
         assert (out / name).stat().st_size > 0
+
+
+def test_ctrl_c_ends_the_demo_like_a_capture(tmp_path):
+    """SIGINT (what Ctrl-C sends) to a real `saglog demo`: the result, the run folder, exit 0."""
+    out = tmp_path / "demo"
+    env = dict(os.environ, PYTHONPATH=str(ROOT))
+    proc = subprocess.Popen([sys.executable, "-m", "logger", "demo", "--out", str(out), "--view", "plain"],
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env)
+    wait_for_a_seating(out)
+    proc.send_signal(signal.SIGINT)
+    stdout, stderr = proc.communicate(timeout=60)
+    assert proc.returncode == 0, stderr
+    assert "Traceback" not in stderr and f"run folder: {out}" in stdout and "seatings:" in stdout
+    summary = json.loads((out / "summary.json").read_text())
+    assert 1 <= summary["seatings_total"] < 17 and summary["ended_utc"]  # ended early: the demo plans 17
+    assert (out / "stream.rec").read_text().rstrip().splitlines()[-1].startswith("# end ")
+    events = [x for x in stdout.splitlines() if x[:2] == "20"]
+    assert events and all(ISO_LINE.match(x) for x in events)

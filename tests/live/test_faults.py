@@ -53,7 +53,7 @@ RATE_HZ = 200.0
 
 
 def fresh_settings(profile, **over):
-    kw = dict(label="", rejection="modified-z", z_cut=3.5, flat_first=None, phase_gap=None, max_spread=None,
+    kw = dict(label="", rejection="modified-z", z_cut=None, alpha=None, flat_first=None, phase_gap=None, max_spread=None,
               settle=None, band=None, lift=None, target_radius=None, focal_length=None, focal_ratio=None,
               diameter=None)
     kw.update(over)
@@ -295,7 +295,7 @@ def start_capture(port, out, *extra, **popen):
     env = dict(os.environ, PYTHONPATH=str(ROOT) + os.pathsep + os.environ.get("PYTHONPATH", ""))
     return subprocess.Popen([sys.executable, "-m", "logger", "capture", "--port", str(port), "--out", str(out),
                              "--profile", str(EXAMPLE_PROFILE), "--settle", str(SETTLE_S), "--view", "plain",
-                             "--quiet", "--wait", "20", *map(str, extra)],
+                             "--no-bells", "--wait", "20", *map(str, extra)],
                             env=env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True, **popen)
 
 
@@ -311,7 +311,7 @@ def check_after_kill(out: Path):
     seats = pd.read_csv(out / "seatings.csv")
     summary = summary_of(out)
     assert summary["seatings_total"] <= len(seats)
-    assert list(seats["index"][: summary["seatings_total"]]) == list(range(summary["seatings_total"]))
+    assert list(seats["index"][: summary["seatings_total"]]) == list(range(1, summary["seatings_total"] + 1))
     return summary["seatings_total"]
 
 

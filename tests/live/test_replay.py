@@ -105,10 +105,30 @@ def test_impossible_or_non_finite_options_are_refused_before_anything_runs(tmp_p
     base = ["replay", str(rec), "--profile", str(EXAMPLE_PROFILE), "--out", str(tmp_path / "o")]
     for extra, word in [(["--lift", "nan"], "--lift"), (["--z-cut", "inf"], "--z-cut"), (["--settle", "nan"], "--settle"),
                         (["--target-radius", "30"], "--target-radius"), (["--focal-ratio", "nan", "--diameter", "150"],
-                                                                          "--focal-ratio")]:
+                                                                          "--focal-ratio"),
+                        # each rejection method's own parameter; one that does not apply is refused
+                        (["--rejection", "grubbs", "--z-cut", "3"], "--z-cut is for --rejection modified-z"),
+                        (["--rejection", "chauvenet", "--z-cut", "3"], "it takes no parameter"),
+                        (["--alpha", "0.01"], "--alpha is for --rejection grubbs, not modified-z"),
+                        (["--rejection", "grubbs", "--alpha", "1.5"], "--alpha")]:
         r = runner.invoke(main, base + extra)
         assert r.exit_code == 2 and word in r.stderr and len(r.stderr.strip().splitlines()) == 1, (extra, r.stderr)
     assert not (tmp_path / "o").exists()  # refused before the run folder was made
+
+
+def test_settings_json_records_only_the_parameter_that_applies(tmp_path):
+    rec = tmp_path / "s.rec"
+    write_session(rec)
+    seen = {}
+    for method, extra in [("modified-z", ["--z-cut", "4"]), ("grubbs", ["--alpha", "0.01"]), ("chauvenet", []),
+                          ("grubbs", [])]:
+        out = tmp_path / f"{method}{len(extra)}"
+        r = run_saglog("replay", rec, "--profile", EXAMPLE_PROFILE, "--out", out, "--rejection", method, *extra)
+        assert r.returncode == 0, r.stderr
+        analysis = json.loads((out / "settings.json").read_text())["analysis"]
+        seen[out.name] = {k: analysis[k] for k in ("z_cut", "alpha") if k in analysis}
+    # defaults: 3.5 (Iglewicz & Hoaglin's recommended cut), alpha 0.05 (the NIST e-Handbook's example level)
+    assert seen == {"modified-z2": {"z_cut": 4.0}, "grubbs2": {"alpha": 0.01}, "chauvenet0": {}, "grubbs0": {"alpha": 0.05}}
 
 
 def test_overflowing_numbers_are_a_one_line_error():

@@ -131,7 +131,7 @@ def test_speak_prints_every_phrase_in_the_plain_log_and_goes_on_without_an_engin
     env = dict(saglog_env(), PATH="/nonexistent")  # no espeak-ng to be found, and pyttsx3 is not installed
     try:
         r = subprocess.run([sys.executable, "-m", "logger", "capture", "--port", device, "--out", tmp_path / "run",
-                            "--profile", EXAMPLE_PROFILE, "--view", "plain", "--quiet", "--speak", "--seatings", "2"],
+                            "--profile", EXAMPLE_PROFILE, "--view", "plain", "--no-bells", "--speak", "--seatings", "2"],
                            env=env, cwd=ROOT, capture_output=True, text=True, timeout=120)
     finally:
         sim.kill()

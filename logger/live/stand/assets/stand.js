@@ -38,8 +38,8 @@ function showResult(s, unit) {
   setText("focal", s.focal_length_mm == null ? "\u2013" : length(s.focal_length_mm, unit, 1) + " " + unit);
   setText("ratio", s.focal_ratio == null ? "\u2013" : "f/" + s.focal_ratio.toFixed(2));
   const target = s.target_radius_mm;
-  setText("togo-caption", target == null ? "radius to go (no target)"
-    : "to go to " + length(target, unit, 1) + " " + unit);
+  setText("togo-caption", target == null ? "radius still to go (no target)"
+    : "radius still to go to " + length(target, unit, 1) + " " + unit);
   setText("togo-radius", s.radius_to_go_mm == null ? "\u2013" : signed(s.radius_to_go_mm, unit, 1) + " " + unit);
   setText("togo-sagitta", s.sagitta_to_go_mm == null ? "\u2013" : signed(s.sagitta_to_go_mm, unit, 4) + " " + unit);
 }
