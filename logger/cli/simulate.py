@@ -51,9 +51,9 @@ def simulate_cmd(use_pty, tcp_port, rec_path, scenario, seed, rate, truth_path, 
         server = PtyServer(run, speed=speed, link_path=link_path) if use_pty else TcpServer(run, tcp_port, speed)
     except OSError as exc:
         raise UserError(f"simulate: cannot serve ({exc.strerror or exc})") from None
+    old = signal.signal(signal.SIGTERM, lambda *_: server._stop.set())  # before the path: a client may stop us at once
     click.echo(server.path if use_pty else server.url)
     sys.stdout.flush()
-    old = signal.signal(signal.SIGTERM, lambda *_: server._stop.set())
     try:
         server.start()
         while not server.wait(0.2):
