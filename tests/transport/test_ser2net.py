@@ -9,6 +9,7 @@ root on a fresh machine); the tests are skipped, saying why, only when that cann
 from __future__ import annotations
 
 import json
+import shutil
 import socket
 import subprocess
 import time
@@ -34,15 +35,22 @@ connection: &saglog-rfc2217
 """
 
 
+def _which_ser2net() -> str | None:
+    return shutil.which("ser2net") or shutil.which("ser2net", path="/usr/sbin:/sbin")  # PATH may lack sbin
+
+
 @pytest.fixture(scope="module")
 def ser2net_exe():
-    try:
-        debian.ensure({"ser2net": "ser2net"})
-    except (RuntimeError, subprocess.SubprocessError, OSError) as exc:
-        pytest.skip(f"ser2net (Debian package ser2net) is missing and cannot be installed here: {exc}")
-    version = subprocess.run(["ser2net", "-v"], capture_output=True, text=True, timeout=30).stdout
+    if _which_ser2net() is None:
+        try:
+            debian.ensure({"ser2net": "ser2net"})
+        except (RuntimeError, subprocess.SubprocessError, OSError) as exc:
+            pytest.skip(f"ser2net (Debian package ser2net) is missing and cannot be installed here: {exc}")
+    exe = _which_ser2net()
+    assert exe, "apt-get installed ser2net but it is not in /usr/sbin"
+    version = subprocess.run([exe, "-v"], capture_output=True, text=True, timeout=30).stdout
     assert "version 4." in version, version  # the configuration below is ser2net 4's YAML
-    return "ser2net"
+    return exe
 
 
 def _free_port() -> int:
