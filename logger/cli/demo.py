@@ -12,7 +12,7 @@ import click
 from logger.cli.options import terminal_watchers, view_option
 from logger.cli.stand import stand_options, stand_watchers
 from logger.live.capture import Stop
-from logger.live.demo import run_demo
+from logger.live.demo import demo_device, device_words, run_demo
 from logger.live.present import result_lines
 from logger.run.columns import RECORDING_FILE, REPORT_PICTURE, REPORT_TEXT
 
@@ -23,7 +23,7 @@ from logger.run.columns import RECORDING_FILE, REPORT_PICTURE, REPORT_TEXT
 @view_option
 @stand_options
 def demo_cmd(out_dir, view, web, web_key, speak):
-    """Capture an invented session from a virtual indicator on a real pseudo-terminal.
+    """Capture an invented session from a virtual indicator on a real pseudo-terminal (or a loopback port).
 
     A 150 mm f/8 mirror in fine grinding (invented numbers): four seatings on
     the flat, ten on the mirror (one with grit under a foot), three on the
@@ -31,12 +31,13 @@ def demo_cmd(out_dir, view, web, web_key, speak):
     with the result so far and a complete run folder.
     """
     out = Path(out_dir) if out_dir else Path("runs") / time.strftime("demo-%Y%m%d-%H%M%S")
-    click.echo("saglog demo: an invented 150 mm f/8 mirror, played by a virtual indicator on a pseudo-terminal")
+    server = demo_device()
+    click.echo(f"saglog demo: an invented 150 mm f/8 mirror, played by a virtual indicator on {device_words(server)}")
     watchers, shown = terminal_watchers(view, "mm", "virtual indicator", bells=False)
     watchers += stand_watchers(web, web_key, speak, "mm", watchers[0])
     stop = Stop.on_signals()
     with shown:
-        summary = run_demo(out, watchers, stop)
+        summary = run_demo(out, watchers, server, stop)
     click.echo("")
     for line in result_lines(summary):
         click.echo(line)

@@ -11,11 +11,12 @@ from logger.cli.options import POSITIVE
 from logger.errors import UserError, cannot_write
 from logger.simulator.model import simulate, write_recording
 from logger.simulator.scenario import load_scenario
-from logger.simulator.serve import PtyServer, TcpServer
+from logger.simulator.serve import PtyServer, TcpServer, virtual_device
 
 
 @click.command("simulate")
-@click.option("--pty", "use_pty", is_flag=True, help="Serve on a pseudo-terminal; prints its path first.")
+@click.option("--pty", "use_pty", is_flag=True,
+              help="Serve on a pseudo-terminal (a socket:// URL where there is none); prints its path first.")
 @click.option("--tcp", "tcp_port", type=click.IntRange(0, 65535), default=None, metavar="PORT", help="Serve on 127.0.0.1:PORT (0: any free port).")
 @click.option("--rec", "rec_path", type=click.Path(dir_okay=False), default=None,
               help="Write the whole run to a .rec recording at once (no real time).")
@@ -48,12 +49,14 @@ def simulate_cmd(use_pty, tcp_port, rec_path, scenario, seed, rate, truth_path, 
         click.echo(f"{rec_path}: {run.truth['duration_s']:g} s of scenario {sc.name!r}, seed {run.seed}")
         return
     try:
-        server = PtyServer(run, speed=speed, link_path=link_path) if use_pty else TcpServer(run, tcp_port, speed)
+        server = virtual_device(run, speed, link_path) if use_pty else TcpServer(run, tcp_port, speed)
     except OSError as exc:
         raise UserError(f"simulate: cannot serve ({exc.strerror or exc})") from None
-    click.echo(server.path if use_pty else server.url)
+    old = signal.signal(signal.SIGTERM, lambda *_: server._stop.set())  # before the path: a client may stop us at once
+    click.echo(server.path)
     sys.stdout.flush()
-    old = signal.signal(signal.SIGTERM, lambda *_: server._stop.set())
+    if use_pty and not isinstance(server, PtyServer):
+        click.echo(f"no pseudo-terminal on this system: serving on {server.path} instead", err=True)
     try:
         server.start()
         while not server.wait(0.2):

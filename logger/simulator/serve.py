@@ -6,6 +6,9 @@ no client is connected, lines are dropped, as a real indicator's would be.
 `unplug()` / `replug()` make the device vanish and come back (a new pty,
 with the optional udev-style symlink re-pointed), so reconnecting can be
 tested; a scenario's disconnect fault does the same at its own time.
+`virtual_device()` picks the pty where the system has one and the loopback
+TCP port where it has none (Windows); the POSIX-only modules are imported
+only when a pty is opened, so everything else imports anywhere.
 """
 
 from __future__ import annotations
@@ -17,7 +20,6 @@ import select
 import socket
 import threading
 import time
-import tty
 
 from logger.checks import is_positive
 from logger.simulator.model import SimRun
@@ -190,6 +192,8 @@ class PtyServer(_Server):
         return self._slave_path
 
     def _open_pty(self) -> None:
+        import tty  # POSIX only (termios): here, so that importing this module works anywhere
+
         master, slave = os.openpty()
         tty.setraw(slave)  # no CR/LF translation, no echo: bytes go through as sent
         self._slave_path = os.ttyname(slave)
@@ -366,3 +370,19 @@ class TcpServer(_Server):
 
     def _close_all(self) -> None:
         self.unplug()
+
+
+NO_PTY = (ImportError, AttributeError)  # no pty/tty/termios module, no os.openpty / select.poll
+
+
+def virtual_device(run: SimRun, speed: float = 1.0, link_path: str | None = None) -> _Server:
+    """The run on a pseudo-terminal, or, where the system has none, on a loopback TCP port.
+
+    Either way `.path` is what `capture --port` opens (a device path or a socket:// URL).
+    """
+    try:
+        return PtyServer(run, speed=speed, link_path=link_path)
+    except NO_PTY:
+        if link_path:
+            raise OSError(f"no pseudo-terminal here to link to {link_path}") from None
+        return TcpServer(run, speed=speed)

@@ -14,6 +14,7 @@ import errno
 import os
 import select
 import time
+from urllib.parse import parse_qs, urlsplit
 
 import serial
 import serial.tools.list_ports
@@ -55,7 +56,7 @@ class SerialSource:
         extra = {} if self.url.lower().startswith("rfc2217://") else {"write_timeout": 1.0}
         try:
             self._ser = serial.serial_for_url(
-                self.url, baudrate=self.baudrate, bytesize=self.bytesize, parity=PARITIES[self.parity],
+                pyserial_url(self.url), baudrate=self.baudrate, bytesize=self.bytesize, parity=PARITIES[self.parity],
                 stopbits=self.stopbits, timeout=self.read_timeout_s, exclusive=True, **extra,
             )
         except (serial.SerialException, OSError, ValueError) as exc:
@@ -136,11 +137,28 @@ class SerialSource:
         self.close()
 
 
+def pyserial_url(url: str) -> str:
+    """The URL handed to pyserial: an rfc2217:// one gets `ign_set_control` unless it says so already.
+
+    At open, pyserial waits for the bridge to confirm the flow-control setting (the RFC 2217
+    SET_CONTROL option); common bridges (ser2net 4) never answer it and the open times out.
+    saglog uses no hardware flow control, so nothing is lost by not waiting for that answer.
+    """
+    parts = urlsplit(url)
+    if parts.scheme.lower() != "rfc2217" or "ign_set_control" in parse_qs(parts.query, keep_blank_values=True):
+        return url
+    return url + ("&" if parts.query else "?") + "ign_set_control"
+
+
 def open_error_message(url: str, exc: BaseException) -> str:
     """One line a user can act on, for a port that will not open."""
     code = getattr(exc, "errno", None)
     text = str(exc)
     low = text.lower()
+    if url.lower().startswith("rfc2217://") and ("waiting for option" in low or "support rfc2217" in low):
+        what = text.split(" [", 1)[0].split(" {", 1)[0]  # pyserial appends the whole option table
+        return (f"{url}: the bridge does not answer RFC 2217 as expected ({what}); check that its port speaks "
+                "it (ser2net: accepter telnet(rfc2217),tcp,PORT), or read the port raw as socket://HOST:PORT")
     if isinstance(exc, ValueError) or "invalid url" in low or "unknown url" in low or "expected" in low:
         return f"{url}: not a valid port or URL ({text}); use a device path, a COM name or socket://host:port"
     if url.lower().startswith(("socket://", "rfc2217://")) and not _has_port(url):

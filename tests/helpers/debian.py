@@ -1,4 +1,4 @@
-"""Debian packages the real-part tests need (chromium, espeak-ng, sox): installed when missing.
+"""Debian packages the real-part tests need (chromium, espeak-ng, sox, ser2net): installed when missing.
 
 `make test` runs as root in CI, on a fresh machine: apt-get installs what is
 missing, once, under a lock so that two pytest-xdist workers never run apt

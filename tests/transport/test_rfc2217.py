@@ -21,7 +21,8 @@ from logger.live.plainlog import PlainLog
 from logger.live.pipeline import RunSettings
 from logger.analysis.seating import DetectorSettings
 from logger.analysis.session import AnalysisSettings
-from logger.simulator import PtyServer, load_scenario, simulate
+from logger.simulator import PtyServer
+from tests.helpers.simrun import short_bridge_run
 
 
 class _Writer:
@@ -95,11 +96,8 @@ class Rfc2217Bridge:
 
 
 def test_capture_through_an_rfc2217_bridge(tmp_path):
-    sc = load_scenario("unplugged").with_overrides(
-        flat_before=2, surface_seatings=2, flat_after=1, seated_s=2.0, lifted_s=0.8, lead_in_s=0.8, tail_s=0.8,
-        rate_hz=40.0, disconnect_at_s=None, disconnect_for_s=None)
-    run = simulate(sc)
-    profile = sc.profile
+    run = short_bridge_run()
+    profile = run.scenario.profile
     with PtyServer(run) as server:
         bridge = Rfc2217Bridge(server.path)
         try:
