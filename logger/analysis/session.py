@@ -199,8 +199,10 @@ def _result(decisions, good, good_flats, zero: Zero, zero_fit, summary: dict, pr
             "One surface seating gives a radius but no uncertainty: seat the surface again."))
         return SessionResult(decisions, summary)
 
-    # scatter, and each reading's step term while that reading scatters by less than one count
-    comps = reading_components(step, sd, n, zero_scatter_mm=flat_sd if flat_sd is not None else sd)
+    # scatter, and each reading's quantisation bias, dithered by the scatter and the noise within seatings
+    within = float(np.sqrt(np.mean([d.seating.spread_mm**2 for d in good + good_flats])))
+    comps = reading_components(step, sd, n, zero_scatter_mm=flat_sd if flat_sd is not None else sd,
+                               within_sd_mm=within)
     comps.append(Component("zero on the flat", u_zero, 1.0, zero.dof, "A", "t" if math.isfinite(zero.dof) else "normal"))
     budget = radius_budget(profile.spherometer, surface, s_mean, comps)
     u_sag = math.sqrt(sum(c.u**2 for c in comps))
@@ -208,7 +210,7 @@ def _result(decisions, good, good_flats, zero: Zero, zero_fit, summary: dict, pr
         status="ok",
         message=("Every surface seating showed the same count: the result cannot be finer than one count."
                  if same_count else "Measured."),
-        sagitta_u_mm=u_sag, radius_u_mm=budget.u_c, radius_U_mm=budget.U, coverage_factor=budget.k,
+        sagitta_u_mm=u_sag, within_seating_sd_mm=within, radius_u_mm=budget.u_c, radius_U_mm=budget.U, coverage_factor=budget.k,
         dof_eff=_finite(budget.nu_eff), focal_length_U_mm=budget.U / 2.0, budget=budget.as_dict()["components"],
     )
     return SessionResult(decisions, summary, budget)

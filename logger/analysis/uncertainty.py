@@ -81,24 +81,65 @@ def scatter_component(scatter_mm: float, n: int, name: str = "seating scatter") 
     return Component(name, scatter_mm / math.sqrt(n), dof=n - 1, kind="A", distribution="t")
 
 
-def reading_components(resolution_mm: float, scatter_mm: float | None = None, n: int | None = None,
-                       zero_scatter_mm: float | None = None) -> list[Component]:
-    """The sagitta's own terms: the seating scatter of a mean of n (when known) and the indicator's step.
+def quantisation_bias_rms_mm(step_mm: float, dither_sd_mm: float) -> float:
+    """RMS, over the reading's unknown offset within a step, of the bias of a mean of quantised readings.
 
-    The sagitta is a surface reading minus a zero reading, each quantised.
-    Averaging beats the step only when the seatings scatter by at least
-    about one count; then the scatter already holds the quantisation and that
-    reading's resolution term is left out.  Below one count (or with no
-    scatter known) it stays.  The surface term follows `scatter_mm`; the zero
-    term follows `zero_scatter_mm` (the flat seatings' own scatter) when it is
-    given, else the same `scatter_mm`.
+    A rounding quantiser of step q fed x + Gaussian noise of SD sigma has
+    E[Q(x)] - x = (q / pi) sum_k (-1)^(k+1) / k exp(-2 pi^2 k^2 sigma^2 / q^2) sin(2 pi k x / q)
+    (Widrow and Kollar, Quantization Noise, 2008: the characteristic-function
+    series).  A mean of many such readings keeps this bias whatever n is, so
+    it is a Type B term.  Over an offset x uniform within a step the sines are
+    orthogonal, and the RMS is sqrt(sum of squared amplitudes / 2): q / sqrt(12)
+    at no noise (GUM F.2.2.1), about 0.04 q at sigma = 0.3 q, 0.002 q at 0.5 q.
+    It falls smoothly as sigma grows; no step is ever switched on or off.
+    """
+    q, sigma = float(step_mm), float(dither_sd_mm)
+    if not (q > 0 and sigma >= 0 and math.isfinite(sigma)):
+        raise ValueError(f"quantisation: step must be > 0 and noise >= 0, got {step_mm!r}, {dither_sd_mm!r}")
+    if sigma == 0.0:
+        return q / math.sqrt(12.0)
+    a = 4.0 * math.pi**2 * sigma**2 / q**2  # squared amplitude k: (q/pi)^2 exp(-a k^2) / k^2
+    kmax = int(min(200_000, 6.0 / math.sqrt(a) + 20))  # exp(-a k^2) < e^-36 beyond
+    k = np.arange(1, kmax + 1, dtype=float)
+    total = math.fsum(np.exp(-a * k * k) / (k * k))
+    total += math.exp(-a * kmax * kmax) / (kmax + 0.5)  # the 1/k^2 tail when sigma is tiny (< 3e-5 q)
+    return q / math.pi * math.sqrt(total / 2.0)
+
+
+def dither_sd_mm(step_mm: float, scatter_mm: float | None, within_sd_mm: float = 0.0) -> float:
+    """The noise that dithers the step for a mean of seatings: between seatings and within each one.
+
+    A seating's value is a mean of samples dithered by the within-seating
+    noise; the seatings' own scatter dithers them again, and two Gaussian
+    dithers add in quadrature.  Both SDs are measured on quantised readings,
+    whose variance averaged over the offset is sigma^2 + q^2 / 12
+    (Sheppard's correction), so q^2 / 12 comes off each first (floored at
+    zero): this errs towards less dither, that is a larger term.
+    """
+    q2 = step_mm * step_mm / 12.0
+    between = 0.0 if scatter_mm is None else max(scatter_mm * scatter_mm - q2, 0.0)
+    within = max(within_sd_mm * within_sd_mm - q2, 0.0)
+    return math.sqrt(between + within)
+
+
+def reading_components(resolution_mm: float, scatter_mm: float | None = None, n: int | None = None,
+                       zero_scatter_mm: float | None = None, within_sd_mm: float = 0.0) -> list[Component]:
+    """The sagitta's own terms: the seating scatter of a mean of n (when known) and each reading's step.
+
+    The sagitta is a surface reading minus a zero reading, each a mean of
+    quantised readings at its own unknown offset within a step, so each keeps
+    its own quantisation bias (`quantisation_bias_rms_mm`), dithered by
+    `dither_sd_mm` of its scatter (`scatter_mm` for the surface,
+    `zero_scatter_mm` for the zero, else the same) and of `within_sd_mm`,
+    the noise within a seating.  With no scatter known the whole step stays.
+    Rectangular for the Monte Carlo: the bias is bounded, and a rectangle of
+    the same u is the wider of the shapes it takes (sawtooth to sine).
     """
     comps = [] if scatter_mm is None else [scatter_component(scatter_mm, n)]
     zero_sd = scatter_mm if zero_scatter_mm is None else zero_scatter_mm
-    if scatter_mm is None or scatter_mm < resolution_mm:
-        comps.append(resolution_component("resolution, surface reading", resolution_mm))
-    if zero_sd is None or zero_sd < resolution_mm:
-        comps.append(resolution_component("resolution, zero reading", resolution_mm))
+    for which, sd in (("surface", scatter_mm), ("zero", zero_sd)):
+        u = quantisation_bias_rms_mm(resolution_mm, dither_sd_mm(resolution_mm, sd, within_sd_mm))
+        comps.append(Component(f"resolution, {which} reading", u, distribution="rectangular"))
     return comps
 
 

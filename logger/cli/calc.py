@@ -122,7 +122,7 @@ def plan(profile_path, diameter, focal_ratio, focal_length, scatter, radius_u, a
     }
     if scatter is not None:
         scatter_mm = to_mm(scatter, unit)
-        # Every term but the scatter of the mean: the resolution stays only when the scatter is under one count.
+        # Every term but the scatter of the mean: the step terms, dithered by that scatter.
         other_terms = [c for c in reading_components(q_mm, scatter_mm, 2) if c.kind == "B"]
         other = radius_budget(profile.spherometer, "concave", s_mm, other_terms)
         out["radius_u_without_scatter"] = from_mm(other.u_c, unit)

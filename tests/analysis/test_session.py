@@ -15,6 +15,7 @@ import sympy
 from hypothesis import given, settings, strategies as st
 from scipy import stats
 
+from tests.helpers.quantisation import bias_rms_direct
 from tests.helpers.exact_construction import three_ball_reading
 from logger.config.profile import parse_profile
 from logger.run.writer import json_text
@@ -211,8 +212,10 @@ def _independent_budget(seatings, flat_idx, surf_idx, q=0.001, p=0.9545):
     s_mean, sd = float(sag.mean()), float(sag.std(ddof=1))
     flat_sd = math.sqrt(float(np.sum((x_f - (icpt + slope * t_f)) ** 2)) / (n_f - 2))
     u_a, u_zero = sd / math.sqrt(n), _line_se(t_f, x_f, t_s)  # GUM 4.2.3; textbook regression
-    # each reading's step q / sqrt(12) (GUM F.2.2.1) stays while that reading scatters by under a count
-    u_res2 = (q * q / 12) * ((sd < q) + (flat_sd < q))
+    # each reading's quantisation bias, computed directly from the normal CDF (tests/helpers/quantisation.py),
+    # dithered by its scatter and the within-seating spread, each less q^2 / 12 (Sheppard's correction)
+    within2 = max(float(np.mean([x.spread_mm**2 for x in seatings])) - q * q / 12, 0.0)
+    u_res2 = sum(bias_rms_direct(q, math.sqrt(max(v * v - q * q / 12, 0.0) + within2)) ** 2 for v in (sd, flat_sd))
     vals = {_A: LEGS[0], _B: LEGS[1], _C: LEGS[2], _D: BALL, _S: s_mean}
     dR = {x: float(sympy.diff(_R_CONCAVE, x).subs(vals)) for x in (_A, _B, _C, _D, _S)}
     inst2 = sum((dR[x] * _U_CALIPER) ** 2 for x in (_A, _B, _C, _D))
@@ -235,8 +238,8 @@ def test_budget_rebuilt_independently_per_gum():
     assert math.isclose(res.summary["radius_u_mm"], u_c, rel_tol=1e-6)
     assert math.isclose(res.summary["dof_eff"], nu_eff, rel_tol=1e-6)
     assert math.isclose(res.summary["radius_U_mm"], U, rel_tol=1e-6)
-    # scatter above one count: the step is dithered away, no resolution term (docs/measurement.md, common practice)
-    assert not any("resolution" in c.name for c in res.budget.components)
+    # scatter above one count: the step is dithered away, its bias term all but nil (Widrow and Kollar, 2008)
+    assert all(c.u < 1e-6 * 0.001 for c in res.budget.components if "resolution" in c.name)
 
 
 def test_same_count_is_said_and_resolution_kept():
@@ -292,7 +295,9 @@ def test_flats_on_one_count_keep_the_zero_resolution_term():
     rng = np.random.default_rng(4)
     s_true = three_ball_reading(*LEGS, BALL / 2, 2400.0, "concave")
     values = [0.0] * 4 + list(-s_true + rng.normal(0, 0.0015, 8)) + [0.0] * 3
-    res = analyse(_seatings(values), make_profile(), AnalysisSettings())
-    names = [c.name for c in res.budget.components]
-    assert "resolution, zero reading" in names and "resolution, surface reading" not in names
+    # no noise within a seating either (spread 0): nothing dithers the flats' step
+    res = analyse(_seatings(values, spread=0.0), make_profile(), AnalysisSettings())
+    u = {c.name: c.u for c in res.budget.components}
+    assert math.isclose(u["resolution, zero reading"], 0.001 / math.sqrt(12), rel_tol=1e-9)
+    assert u["resolution, surface reading"] < 1e-4 * 0.001
     assert res.summary["zero_u_mm"] == 0.0 and res.summary["sagitta_u_mm"] > 0.001 / math.sqrt(12)

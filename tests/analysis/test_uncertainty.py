@@ -18,6 +18,7 @@ from logger.analysis.uncertainty import (
     Component,
     coverage_factor,
     monte_carlo_radius,
+    quantisation_bias_rms_mm,
     radius_budget,
     reading_components,
     resolution_component,
@@ -25,6 +26,7 @@ from logger.analysis.uncertainty import (
     seatings_needed,
 )
 from logger.analysis import geometry
+from tests.helpers.quantisation import bias_rms_direct
 
 
 def _three_ball(u_leg=0.012, u_ball=0.002):
@@ -104,14 +106,49 @@ def test_component_rules():
             Component("bad", **bad)
 
 
-def test_reading_components_keep_resolution_only_below_one_count():
-    # Source: the rule in docs/measurement.md (common practice; dithering, Widrow and Kollar, Quantization
-    # Noise, 2008, from memory): averaging beats the step only when the scatter is at
-    # least about one count.
+@pytest.mark.parametrize("sigma", [0.0, 0.02, 0.05, 0.1, 0.2, 0.3, 0.4, 0.5, 0.7])
+def test_quantisation_bias_against_the_direct_expectation(sigma):
+    # Source: the expected count of a Gaussian input, summed bin by bin from scipy.stats.norm
+    # (tests/helpers/quantisation.py), against the Widrow-Kollar series in the code.
+    q = 0.001
+    want = bias_rms_direct(q, sigma * q)
+    assert quantisation_bias_rms_mm(q, sigma * q) == pytest.approx(want, rel=1e-3, abs=1e-9 * q)
+
+
+def test_quantisation_bias_against_simulated_quantised_means():
+    # Source: a direct numpy simulation: at 64 offsets over a step, the mean of 40000 rounded noisy
+    # readings minus the offset; RMS over the offsets.  The figures the issue quotes from the series
+    # (q / sqrt(12) with no noise, about 0.04 q at 0.3 q) come out of the simulation too.
+    rng = np.random.default_rng(5)
+    q = 1.0
+    for sigma, tol in ((0.0, 0.01), (0.15, 0.01), (0.3, 0.005)):
+        x = (np.arange(64) + 0.5) / 64
+        reads = np.round((x[:, None] + rng.normal(0, sigma, (64, 40000))) / q) * q
+        sim = float(np.sqrt(np.mean((reads.mean(axis=1) - x) ** 2)))
+        assert abs(quantisation_bias_rms_mm(q, sigma) - sim) < tol, sigma
+    assert quantisation_bias_rms_mm(q, 0.0) == pytest.approx(1 / math.sqrt(12), rel=1e-12)  # GUM F.2.2.1
+    assert quantisation_bias_rms_mm(q, 0.3) == pytest.approx(0.04, abs=0.003)
+
+
+@settings(max_examples=200, deadline=None)
+@given(s1=st.floats(0.0, 3.0), ds=st.floats(0.0, 0.05), w=st.floats(0.0, 1.0))
+def test_step_term_has_no_jump_and_falls_as_the_scatter_grows(s1, ds, w):
+    # Property of the series: each amplitude falls with sigma, and |d RMS / d sigma| < 1.5 (it peaks
+    # near 1 at small sigma); the dither sqrt(s^2 - q^2/12 + w'^2) moves by at most
+    # sqrt((s + ds)^2 - s^2) (a square root is 1/2-Hoelder), so the term has no jump and never grows.
+    q = 0.001
+    def u(s):
+        return {c.name: c.u for c in reading_components(q, s * q, 8, within_sd_mm=w * q)}["resolution, surface reading"]
+    assert u(s1 + ds) <= u(s1) + 1e-15
+    assert u(s1) - u(s1 + ds) <= 1.5 * q * math.sqrt(ds * (2 * s1 + ds)) * (1 + 1e-9) + 1e-15
+    assert u(s1) <= q / math.sqrt(12) * (1 + 1e-12)
+
+
+def test_reading_components_hold_scatter_and_two_step_terms():
     names = lambda comps: [c.name for c in comps]  # noqa: E731
-    assert len(reading_components(0.001)) == 2
-    assert len(reading_components(0.001, 0.0005, 5)) == 3
-    assert names(reading_components(0.001, 0.002, 5)) == ["seating scatter"]
+    assert names(reading_components(0.001)) == ["resolution, surface reading", "resolution, zero reading"]
+    assert all(c.u == pytest.approx(0.001 / math.sqrt(12)) for c in reading_components(0.001))
+    assert names(reading_components(0.001, 0.002, 5))[0] == "seating scatter"
 
 
 def test_budget_as_dict_is_json_safe_and_table_converts_units():
