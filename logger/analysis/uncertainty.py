@@ -271,7 +271,45 @@ def radius_budget(spherometer, surface: str, sagitta_mm: float, sagitta_componen
             comps.append(
                 Component(_INPUT_LABELS.get(name, name), u, _input_sensitivity(spherometer, surface, sagitta_mm, name))
             )
+    comps += systematic_components(spherometer, surface, sagitta_mm, value, dR_ds)
     return Budget("radius of curvature", value, tuple(comps))
+
+
+_LEGS = ("a", "b", "c", *(f"{how}_{x}" for how in ("outside", "inside") for x in "abc"))
+
+
+def systematic_components(spherometer, surface: str, sagitta_mm: float, radius_mm: float,
+                          dR_ds: float) -> list[Component]:
+    """The rig's error sources beyond its measured inputs (profile [uncertainty], logger.config.profile).
+
+    The flat's flatness F and the indicator's error of indication E each
+    shift the sagitta by up to +-F, +-E: rectangular, sensitivity dR/ds.  A
+    probe off the circumcentre by up to e makes R read long by up to
+    R e^2 / r^2 (about; tests/analysis/test_probe_offset.py builds it
+    exactly); not knowing the sign of a one-sided bias that is not
+    corrected, it is carried as a symmetric rectangle of that half-width,
+    which covers it.  A caliper error common to the three legs is one input
+    entering each leg with sensitivity 1: GUM 5.2 with correlation
+    u_common^2 / (u_common^2 + u_leg^2) between the legs; its sensitivity
+    is the sum of the three legs'.
+    """
+    sys_mm = spherometer.systematic_mm
+    out = []
+    for key, label in (("flat_flatness", "reference flat's flatness over the ring"),
+                       ("indicator_error", "indicator's error of indication")):
+        if sys_mm.get(key, 0.0) > 0:
+            out.append(Component(label, sys_mm[key] / math.sqrt(3.0), dR_ds, distribution="rectangular"))
+    e = sys_mm.get("probe_offset", 0.0)
+    if e > 0:
+        ring_mm = spherometer.contact_mm(surface)[0]
+        out.append(Component("probe offset from the circumcentre", radius_mm * e * e / ring_mm**2 / math.sqrt(3.0),
+                             distribution="rectangular"))
+    common = sys_mm.get("caliper_common", 0.0)
+    if common > 0:
+        legs = [x for x in _LEGS if x in spherometer.params_mm]
+        out.append(Component("caliper error common to the legs", common,
+                             sum(_input_sensitivity(spherometer, surface, sagitta_mm, x) for x in legs)))
+    return out
 
 
 def _draw(rng: np.random.Generator, c: Component, n: int) -> np.ndarray:
@@ -298,12 +336,19 @@ def monte_carlo_radius(
     s = np.full(n, float(sagitta_mm))
     for c in sagitta_components:
         s = s + c.sensitivity * _draw(rng, c, n)
+    sys_mm = spherometer.systematic_mm
+    for key in ("flat_flatness", "indicator_error"):  # rectangular, half-width as stated
+        s = s + rng.uniform(-1.0, 1.0, n) * sys_mm.get(key, 0.0)
+    common = rng.normal(0.0, sys_mm.get("caliper_common", 0.0), n)  # one draw shared by the three legs
     params = {
         name: x + (rng.normal(0.0, spherometer.u_mm.get(name, 0.0), n) if spherometer.u_mm.get(name, 0.0) > 0 else 0.0)
+        + (common if name in _LEGS else 0.0)
         for name, x in spherometer.params_mm.items()
     }
     ring_mm, foot_mm = spherometer.contact_mm(surface, params)
-    return np.broadcast_to(geometry.radius_from_sagitta_mm(s, ring_mm, foot_mm, surface), (n,)).copy()
+    R = np.broadcast_to(geometry.radius_from_sagitta_mm(s, ring_mm, foot_mm, surface), (n,)).copy()
+    e = sys_mm.get("probe_offset", 0.0)  # as in systematic_components: +-R e^2 / r^2, rectangular
+    return R + rng.uniform(-1.0, 1.0, n) * R * e * e / ring_mm**2
 
 
 def seatings_needed(

@@ -38,6 +38,26 @@ DEFAULT_U_MM = {
     "ring_radius": 0.01,
 }
 
+# Error sources of a real rig beyond the measured inputs, as bounds (half-widths, mm) unless said;
+# each enters the budget (logger.analysis.uncertainty.systematic_components).  Common practice,
+# from memory:
+# - flat_flatness: the reference flat's departure over the ring.  A good granite plate or thick
+#   float glass keeps within about half a micrometre over a 70 mm ring; 1 um is about 7 mm of R
+#   on the example rig at f/8.
+# - indicator_error: the indicator's error of indication over the travel used (a sagitta of a few
+#   tenths of a millimetre).  Makers state a few micrometres over the whole travel; one micrometre
+#   over a short stretch is a fair guess.  Measure yours with `saglog indicator-check`.
+# - probe_offset: how far the probe may sit from the circumcentre of the ball centres; R then reads
+#   long by about R e^2 / r^2.  Half a millimetre for a carefully drilled home-made frame.
+# - caliper_common: standard uncertainty of a caliper error shared by all three leg readings (its
+#   zero or scale), k = 1; about a quarter of a +-0.02 mm caliper's specification.
+DEFAULT_SYSTEMATIC_MM = {
+    "flat_flatness": 0.0005,
+    "indicator_error": 0.001,
+    "probe_offset": 0.5,
+    "caliper_common": 0.005,
+}
+
 _TOP_KEYS = {"unit", "name", "spherometer", "indicator", "uncertainty", "calibration"}
 # [calibration] (kind "calibrated", written by saglog calibrate): what the measurement uses, and the record.
 _CAL_USED = {"ring_radius_per_ball_diameter", "sagitta_min", "sagitta_max"}
@@ -48,7 +68,7 @@ _SPH_KEYS = {
     "calibrated": ({"kind", "ring_radius"}, {"ball_diameter"}),
 }
 _IND_KEYS = ({"resolution"}, {"sense", "unit"})
-_U_KEYS = set(DEFAULT_U_MM)
+_U_KEYS = set(DEFAULT_U_MM) | set(DEFAULT_SYSTEMATIC_MM)
 
 
 @dataclass(frozen=True)
@@ -77,6 +97,7 @@ class Spherometer:
     params_mm: dict = field(default_factory=dict)
     u_mm: dict = field(default_factory=dict)
     ball_coupling: float = 0.0  # calibrated: dr/dd of the ring radius found with this ball (unit-free)
+    systematic_mm: dict = field(default_factory=dict)  # DEFAULT_SYSTEMATIC_MM's keys: the rig's other sources
 
     def contact_mm(self, surface: str, params: dict | None = None) -> tuple[float, float]:
         p = self.params_mm if params is None else params
@@ -165,7 +186,8 @@ def parse_profile(data: dict, source: str = "profile") -> Profile:
     u_of = _uncertainties(data, unit, source)
     params, u = _KIND_PARAMS[kind](sph, unit, where, u_of)
     coupling, sag_range = _calibration(data.get("calibration"), kind, unit, source)
-    spherometer = Spherometer(kind, params, u, coupling)
+    systematic = {k: u_of[k] for k in DEFAULT_SYSTEMATIC_MM if k != "caliper_common" or kind == "three-ball"}
+    spherometer = Spherometer(kind, params, u, coupling, systematic)
     indicator = _indicator(data["indicator"], unit, source)
     name = data.get("name", "")
     if not isinstance(name, str):
@@ -179,7 +201,8 @@ def _uncertainties(data: dict, unit: str, source: str) -> dict[str, float]:
     if not isinstance(ut, dict):
         raise UserError(f"{source}: [uncertainty] must be a table")
     _check_keys(ut, set(), _U_KEYS, f"{source}: [uncertainty]")
-    return {k: (_length(ut[k], unit, f"{source}: [uncertainty] {k}", allow_zero=True) if k in ut else DEFAULT_U_MM[k])
+    defaults = DEFAULT_U_MM | DEFAULT_SYSTEMATIC_MM
+    return {k: (_length(ut[k], unit, f"{source}: [uncertainty] {k}", allow_zero=True) if k in ut else defaults[k])
             for k in _U_KEYS}
 
 

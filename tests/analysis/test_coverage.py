@@ -30,6 +30,7 @@ import numpy as np
 import pytest
 import sympy
 
+from logger.config.profile import DEFAULT_SYSTEMATIC_MM
 from logger.simulator import load_scenario, simulate
 from tests.helpers.exact_construction import three_ball_reading
 from tests.helpers.simrun import analyse_run
@@ -102,6 +103,14 @@ def _instrument(profile_file: str, surface: str, R_mm: float):
     vals = {a: legs[0], b: legs[1], c: legs[2], d: ball, s: s_mm}
     sens = {x: float(sympy.diff(R, x).subs(vals)) for x in (a, b, c, d, s)}
     inst2 = sum((sens[x] * u_leg) ** 2 for x in (a, b, c)) + (sens[d] * u_ball) ** 2
+    # the rig's other sources as the file states them or at their defaults: flat and indicator bounds
+    # on s, the probe offset's R e^2 / r^2 on R (rectangles, GUM 4.3.7), and a caliper error common to
+    # the three legs (GUM 5.2: one shared input, sensitivity the sum of the legs')
+    rig = {k: stated.get(k, v / to_mm) * to_mm for k, v in DEFAULT_SYSTEMATIC_MM.items()}
+    r2_mm = float(r2.subs(vals))
+    inst2 += ((sens[s] * rig["flat_flatness"]) ** 2 + (sens[s] * rig["indicator_error"]) ** 2
+              + (R_mm * rig["probe_offset"] ** 2 / r2_mm) ** 2) / 3
+    inst2 += ((sens[a] + sens[b] + sens[c]) * rig["caliper_common"]) ** 2
     return s_mm, sens[s], inst2
 
 

@@ -16,6 +16,7 @@ from hypothesis import given, settings, strategies as st
 from scipy import stats
 
 from tests.helpers.quantisation import bias_rms_direct
+from logger.config.profile import DEFAULT_SYSTEMATIC_MM
 from tests.helpers.exact_construction import three_ball_reading
 from logger.config.profile import parse_profile
 from logger.run.writer import json_text
@@ -201,6 +202,18 @@ _R_CONCAVE = ((_A * _B * _C) ** 2 / ((_A + _B + _C) * (-_A + _B + _C) * (_A - _B
 _U_CALIPER = 0.02 / math.sqrt(3)
 
 
+def _rig2(dR, vals) -> float:
+    """The rig's other sources at the profile's defaults (logger.config.profile.DEFAULT_SYSTEMATIC_MM):
+    flat and indicator bounds as rectangles on s (GUM 4.3.7), the probe offset's R e^2 / r^2 as a
+    rectangle on R, and one caliper error shared by the three legs (GUM 5.2, correlation via a common
+    input: its sensitivity is dR/da + dR/db + dR/dc)."""
+    d = DEFAULT_SYSTEMATIC_MM
+    R = float(_R_CONCAVE.subs(vals))
+    r2 = float(((_A * _B * _C) ** 2 / ((_A + _B + _C) * (-_A + _B + _C) * (_A - _B + _C) * (_A + _B - _C))).subs(vals))
+    return ((dR[_S] * d["flat_flatness"]) ** 2 + (dR[_S] * d["indicator_error"]) ** 2
+            + (R * d["probe_offset"] ** 2 / r2) ** 2) / 3 + ((dR[_A] + dR[_B] + dR[_C]) * d["caliper_common"]) ** 2
+
+
 def _independent_budget(seatings, flat_idx, surf_idx, q=0.001, p=0.9545):
     """u_c, nu_eff and U of a concave session's radius, rebuilt here from the raw seatings (GUM)."""
     flats = [x for x in seatings if x.index in flat_idx]
@@ -218,7 +231,7 @@ def _independent_budget(seatings, flat_idx, surf_idx, q=0.001, p=0.9545):
     u_res2 = sum(bias_rms_direct(q, math.sqrt(max(v * v - q * q / 12, 0.0) + within2)) ** 2 for v in (sd, flat_sd))
     vals = {_A: LEGS[0], _B: LEGS[1], _C: LEGS[2], _D: BALL, _S: s_mean}
     dR = {x: float(sympy.diff(_R_CONCAVE, x).subs(vals)) for x in (_A, _B, _C, _D, _S)}
-    inst2 = sum((dR[x] * _U_CALIPER) ** 2 for x in (_A, _B, _C, _D))
+    inst2 = sum((dR[x] * _U_CALIPER) ** 2 for x in (_A, _B, _C, _D)) + _rig2(dR, vals)
     terms_a = [(abs(dR[_S]) * u_a, n - 1), (abs(dR[_S]) * u_zero, n_f - 2)]  # Type A with their dof
     u_c = math.sqrt(sum(c * c for c, _ in terms_a) + dR[_S] ** 2 * u_res2 + inst2)  # GUM eq. 10
     nu_eff = u_c**4 / sum(c**4 / nu for c, nu in terms_a if c > 0) if any(c > 0 for c, _ in terms_a) else math.inf

@@ -29,18 +29,23 @@ from logger.analysis import geometry
 from tests.helpers.quantisation import bias_rms_direct
 
 
+# The rig's other sources switched off, so these checks see the inputs they are about alone
+# (systematic_components has its own tests below).
+NO_RIG = {"flat_flatness": 0, "indicator_error": 0, "probe_offset": 0, "caliper_common": 0}
+
+
 def _three_ball(u_leg=0.012, u_ball=0.002):
     return parse_profile({"unit": "mm", "spherometer": {"kind": "three-ball", "leg_spacings": [70.02, 69.98, 70.01],
                                                         "ball_diameter": 6.35},
                           "indicator": {"resolution": 0.001},
-                          "uncertainty": {"leg_spacing": u_leg, "ball_diameter": u_ball}}, "test").spherometer
+                          "uncertainty": {"leg_spacing": u_leg, "ball_diameter": u_ball, **NO_RIG}}, "test").spherometer
 
 
 def _ring(u_edge=0.02, u_diam=0.0):
     return parse_profile({"unit": "mm", "spherometer": {"kind": "ring", "inner_diameter": 70.0,
                                                         "outer_diameter": 76.0, "edge_radius": 0.5},
                           "indicator": {"resolution": 0.001},
-                          "uncertainty": {"edge_radius": u_edge, "ring_diameter": u_diam}}, "test").spherometer
+                          "uncertainty": {"edge_radius": u_edge, "ring_diameter": u_diam, **NO_RIG}}, "test").spherometer
 
 
 @settings(max_examples=100, deadline=None)
@@ -269,7 +274,7 @@ def test_legs_from_readings_share_the_ball_error_and_monte_carlo_agrees():
     def prof(sph):
         return parse_profile({"unit": "mm", "spherometer": {"kind": "three-ball", "ball_diameter": 6.35, **sph},
                               "indicator": {"resolution": 0.001},
-                              "uncertainty": {"leg_spacing": 0.01, "ball_diameter": 0.01}}, "t")
+                              "uncertainty": {"leg_spacing": 0.01, "ball_diameter": 0.01, **NO_RIG}}, "t")
 
     reads = prof({"leg_readings": [76.37, 76.33, 76.36], "readings": "outside"}).spherometer
     centres = prof({"leg_spacings": [70.02, 69.98, 70.01]}).spherometer
@@ -314,3 +319,52 @@ def test_monte_carlo_where_the_legs_dominate(surface):
     code_mc = monte_carlo_radius(sph, surface, s, comps, n=400_000, seed=13)
     assert float(np.std(code_mc, ddof=1)) == pytest.approx(float(np.std(ref, ddof=1)), rel=0.01)
     assert float(np.mean(code_mc)) == pytest.approx(float(np.mean(ref)), abs=0.02 * b.u_c)
+
+
+def test_caliper_error_common_to_the_legs_is_correlated_in_budget_and_monte_carlo():
+    # GUM 5.2: legs sharing one caliper error u_0 are correlated with r = u_0^2 / (u_0^2 + u_leg^2).
+    # Rebuilt here with eq. 16, u_c^2 = sum_ij c_i c_j u_i u_j r_ij over the legs (sensitivities by
+    # sympy on the textbook circumradius, Heron), and with a Monte Carlo written here that draws one
+    # shared error for the three legs (JCGM 101 6.4.7); the code's budget and Monte Carlo must agree.
+    u_leg, u0 = 0.01, 0.008
+    sph = parse_profile({"unit": "mm", "spherometer": {"kind": "three-ball", "leg_spacings": [70.02, 69.98, 70.01],
+                                                       "ball_diameter": 6.35}, "indicator": {"resolution": 0.001},
+                         "uncertainty": {"leg_spacing": u_leg, "ball_diameter": 0, **NO_RIG, "caliper_common": u0}},
+                        "t").spherometer
+    s = 0.34
+    b = radius_budget(sph, "concave", s, [])
+    a_, b_, c_, s_ = sympy.symbols("a b c s", positive=True)
+    r2 = (a_ * b_ * c_) ** 2 / ((a_ + b_ + c_) * (-a_ + b_ + c_) * (a_ - b_ + c_) * (a_ + b_ - c_))
+    R = (r2 + s_**2) / (2 * s_)
+    vals = {a_: 70.02, b_: 69.98, c_: 70.01, s_: s}
+    cs = [float(sympy.diff(R, x).subs(vals)) for x in (a_, b_, c_)]
+    ui = math.hypot(u_leg, u0)
+    rho = u0**2 / ui**2
+    u2 = sum(ci * cj * ui * ui * (1.0 if i == j else rho) for i, ci in enumerate(cs) for j, cj in enumerate(cs))
+    assert b.u_c == pytest.approx(math.sqrt(u2), rel=1e-5)
+    # independence would be wrong by a wide margin here (the legs' sensitivities share a sign)
+    assert math.sqrt(sum((ci * ui) ** 2 for ci in cs)) < 0.8 * b.u_c
+    draws = monte_carlo_radius(sph, "concave", s, [], n=200_000, seed=2)
+    rng = np.random.default_rng(8)
+    common = rng.normal(0, u0, 200_000)
+    a, bb, c = (rng.normal(x, u_leg, 200_000) + common for x in (70.02, 69.98, 70.01))
+    r = a * bb * c / np.sqrt((a + bb + c) * (-a + bb + c) * (a - bb + c) * (a + bb - c))
+    ind = (r**2 + s**2) / (2 * s) + 6.35 / 2
+    assert float(np.std(draws)) == pytest.approx(float(np.std(ind)), rel=0.02)
+    assert float(np.std(draws)) == pytest.approx(b.u_c, rel=0.02)
+
+
+def test_flat_and_indicator_bounds_enter_as_rectangles_on_the_sagitta():
+    # GUM 4.3.7: a bound +-a read as a rectangle has u = a / sqrt(3); both shift the sagitta,
+    # sensitivity dR/ds (textbook: R = (r^2 + s^2) / (2 s) + rho).
+    sph = parse_profile({"unit": "mm", "spherometer": {"kind": "three-ball", "leg_spacings": [70.02, 69.98, 70.01],
+                                                       "ball_diameter": 6.35}, "indicator": {"resolution": 0.001},
+                         "uncertainty": {"leg_spacing": 0, "ball_diameter": 0, **NO_RIG,
+                                         "flat_flatness": 0.001, "indicator_error": 0.002}}, "t").spherometer
+    s = 0.34
+    r = geometry.circumradius_mm(70.02, 69.98, 70.01)
+    dRds = (s * s - r * r) / (2 * s * s)
+    b = radius_budget(sph, "concave", s, [])
+    assert b.u_c == pytest.approx(abs(dRds) * math.hypot(0.001, 0.002) / math.sqrt(3), rel=1e-9)
+    draws = monte_carlo_radius(sph, "concave", s, [], n=200_000, seed=4)
+    assert float(np.std(draws)) == pytest.approx(b.u_c, rel=0.02)
