@@ -352,13 +352,16 @@ def monte_carlo_radius(
 
 
 def seatings_needed(
-    target_u_radius_mm: float, scatter_mm: float, sagitta_mm: float, ring_radius_mm: float, other_u_radius_mm: float = 0.0
+    target_u_radius_mm: float, scatter_mm: float, sagitta_mm: float, ring_radius_mm: float, other_u_radius_mm: float = 0.0,
+    zero_factor: float = 0.0,
 ) -> int | None:
     """Seatings n on the surface so that the radius's standard uncertainty reaches the target.
 
-    u(R)^2 = (dR/ds * scatter / sqrt(n))^2 + other^2 <= target^2, the
-    scatter term being the Type A standard uncertainty of a mean (GUM 4.2.3).
-    None when the other terms alone already reach the target.
+    u(R)^2 = (dR/ds * scatter)^2 (1 + zero_factor) / n + other^2 <= target^2:
+    the scatter term is the Type A standard uncertainty of a mean (GUM 4.2.3),
+    and the zero's own Type A term is zero_factor times it (1 when the flat
+    is seated as often as the surface, with the same scatter; 0 leaves the
+    zero out).  None when the other terms alone already reach the target.
     """
     if not (target_u_radius_mm > 0):
         raise UserError(f"the wanted radius uncertainty must be positive, got {target_u_radius_mm!r}")
@@ -367,6 +370,6 @@ def seatings_needed(
     room = target_u_radius_mm**2 - other_u_radius_mm**2
     if room <= 0:
         return None
-    per_seating = (geometry.dradius_dsagitta(sagitta_mm, ring_radius_mm) * scatter_mm) ** 2
+    per_seating = (geometry.dradius_dsagitta(sagitta_mm, ring_radius_mm) * scatter_mm) ** 2 * (1.0 + zero_factor)
     # The tiny allowance keeps an exact integer ratio from rounding up by one.
     return max(1, math.ceil(per_seating / room * (1.0 - 1e-12)))

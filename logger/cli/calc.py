@@ -126,7 +126,9 @@ def plan(profile_path, diameter, focal_ratio, focal_length, scatter, radius_u, a
         other_terms = [c for c in reading_components(q_mm, scatter_mm, 2) if c.kind == "B"]
         other = radius_budget(profile.spherometer, "concave", s_mm, other_terms)
         out["radius_u_without_scatter"] = from_mm(other.u_c, unit)
-        out["seatings_needed"] = seatings_needed(to_mm(radius_u, unit), scatter_mm, s_mm, ring_cc, other.u_c)
+        # as many seatings on the flat as on the surface, same scatter: the zero's Type A term equals the surface's
+        out["seatings_needed"] = seatings_needed(to_mm(radius_u, unit), scatter_mm, s_mm, ring_cc, other.u_c,
+                                                 zero_factor=1.0)
     if as_json:
         _echo_json(out)
         return
@@ -143,7 +145,7 @@ def plan(profile_path, diameter, focal_ratio, focal_length, scatter, radius_u, a
             click.echo(f"{want}: not reachable; resolution and spherometer terms alone give u(R) = "
                        f"{g('radius_u_without_scatter')}")
         else:
-            click.echo(f"seatings needed for {want}: {n}")
+            click.echo(f"seatings needed for {want}: {n} on the mirror and {n} on the flat")
 
 
 def toml_value(value) -> str:

@@ -247,6 +247,8 @@ def test_seatings_needed_hand_worked():
     # n >= 9.999^2 / 16 = 6.249 -> 7.
     assert seatings_needed(5.0, 0.002, 0.4, 40.0, 3.0) == 7
     assert seatings_needed(5.0, 0.002, 0.4, 40.0, 5.0) is None
+    # the zero seated as often with the same scatter doubles the Type A variance: n >= 12.497 -> 13
+    assert seatings_needed(5.0, 0.002, 0.4, 40.0, 3.0, zero_factor=1.0) == 13
     assert seatings_needed(5.0, 0.0, 0.4, 40.0) == 1
     with pytest.raises(UserError):
         seatings_needed(0.0, 0.002, 0.4, 40.0)

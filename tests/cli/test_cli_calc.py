@@ -153,8 +153,9 @@ def test_plan_human_and_seatings():
     out = ok_json("plan", "--profile", EXAMPLE, "--diameter", "200", "--focal-ratio", "6",
                   "--scatter", "0.002", "--radius-u", "6")
     n = out["seatings_needed"]
-    # Source: definition (GUM eq. 10): n seatings reach the target, n - 1 do not.
-    per = out["radius_per_count"] / 0.001 * 0.002  # |dR/ds| * scatter, linearised as in the plan
+    # Source: definition (GUM eq. 10): n seatings reach the target, n - 1 do not; the zero is the mean
+    # of as many flat seatings with the same scatter, so its Type A term doubles the variance (GUM 4.2.3).
+    per = out["radius_per_count"] / 0.001 * 0.002 * math.sqrt(2)  # |dR/ds| * scatter, linearised as in the plan
     assert math.hypot(per / math.sqrt(n), out["radius_u_without_scatter"]) <= 6.0
     assert math.hypot(per / math.sqrt(n - 1), out["radius_u_without_scatter"]) > 6.0
     unreachable = ok_json("plan", "--profile", EXAMPLE, "--diameter", "200", "--focal-ratio", "6",
