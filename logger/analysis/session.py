@@ -213,7 +213,20 @@ def _result(decisions, good, good_flats, zero: Zero, zero_fit, summary: dict, pr
         sagitta_u_mm=u_sag, within_seating_sd_mm=within, radius_u_mm=budget.u_c, radius_U_mm=budget.U, coverage_factor=budget.k,
         dof_eff=_finite(budget.nu_eff), focal_length_U_mm=budget.U / 2.0, budget=budget.as_dict()["components"],
     )
+    _depth_to_go(summary, settings, radius, budget.U)
     return SessionResult(decisions, summary, budget)
+
+
+def _depth_to_go(summary: dict, settings: AnalysisSettings, radius: float, U: float) -> None:
+    """Depth still to grind at the centre over the full aperture D, for a sphere:
+    sag(R_target, D/2) - sag(R_now, D/2), sag(R, h) = R - sqrt(R^2 - h^2); its U by the
+    sensitivity d sag / dR = 1 - R / sqrt(R^2 - h^2) (GUM 5.1.3; the target is exact)."""
+    d, tr = settings.diameter_mm, settings.target_radius_mm
+    if not (d and tr) or d / 2 >= min(radius, tr):
+        return
+    h = d / 2.0
+    summary.update(depth_to_go_mm=geometry.aperture_depth_mm(tr, d) - geometry.aperture_depth_mm(radius, d),
+                   depth_to_go_U_mm=abs(1.0 - radius / math.sqrt(radius * radius - h * h)) * U)
 
 
 def _apply(ds: list[Decision], verdicts) -> None:
@@ -247,7 +260,8 @@ def _base_summary(profile: Profile, settings: AnalysisSettings) -> dict:
     """Every key present from the first moment, null where not yet known (never NaN)."""
     keys = ("surface zero_mm zero_u_mm zero_t_ref_s drift_mm_per_min drift_model sagitta_mm sagitta_u_mm "
             "radius_mm radius_u_mm radius_U_mm coverage_factor dof_eff focal_length_mm focal_length_U_mm "
-            "diameter_mm focal_ratio target_radius_mm radius_to_go_mm sagitta_to_go_mm").split()
+            "diameter_mm focal_ratio target_radius_mm radius_to_go_mm sagitta_to_go_mm depth_to_go_mm "
+            "depth_to_go_U_mm").split()
     out = {k: None for k in keys}
     r_cc, rho = profile.contact_mm("concave")
     r_cv, _ = profile.contact_mm("convex")

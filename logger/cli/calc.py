@@ -18,7 +18,8 @@ from logger.analysis import geometry
 from logger.errors import UserError
 from logger.config.profile import DEFAULT_U_MM, SENSES, load_profile, parse_profile
 from logger.run.writer import write_atomic
-from logger.analysis.uncertainty import Component, radius_budget, reading_components, seatings_needed
+from logger.analysis.uncertainty import (Component, radius_budget, reading_components, seatings_needed,
+                                         systematic_components)
 from logger.units import check_unit, from_mm, to_mm
 
 
@@ -118,6 +119,7 @@ def plan(profile_path, diameter, focal_ratio, focal_length, scatter, radius_u, a
         "focal_ratio": f_mm / D_mm,
         "diameter": diameter,
         "resolution": from_mm(q_mm, unit),
+        "rig_terms": _rig_terms(profile, s_mm, R_mm),
         "unit": unit,
     }
     if scatter is not None:
@@ -138,14 +140,25 @@ def plan(profile_path, diameter, focal_ratio, focal_length, scatter, radius_u, a
     click.echo(f"this spherometer reads {g('target_sagitta')} on the mirror (concave)"
                f" and {g('tool_sagitta')} on the matching convex tool")
     click.echo(f"one indicator count ({g('resolution')}) moves R by {g('radius_per_count')} at the target")
+    if out["rig_terms"]:
+        click.echo("the rig's other sources, u(R) at the target: " + ", ".join(
+            f"{name} {v:.3g} {unit}" for name, v in out["rig_terms"].items()) + " ([uncertainty] in the profile)")
     if scatter is not None:
         n = out["seatings_needed"]
         want = f"u(R) = {radius_u:g} {unit} with {scatter:g} {unit} scatter"
         if n is None:
-            click.echo(f"{want}: not reachable; resolution and spherometer terms alone give u(R) = "
+            click.echo(f"{want}: not reachable; resolution, spherometer and rig terms alone give u(R) = "
                        f"{g('radius_u_without_scatter')}")
         else:
             click.echo(f"seatings needed for {want}: {n} on the mirror and {n} on the flat")
+
+
+def _rig_terms(profile, s_mm: float, R_mm: float) -> dict:
+    """Each of the rig's other sources as its share of u(R) at the target, in the profile's unit."""
+    ring_mm = profile.contact_mm("concave")[0]
+    comps = systematic_components(profile.spherometer, "concave", s_mm, R_mm,
+                                  geometry.dradius_dsagitta(s_mm, ring_mm))
+    return {c.name: from_mm(c.contribution, profile.unit) for c in comps}
 
 
 def toml_value(value) -> str:

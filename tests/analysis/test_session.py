@@ -314,3 +314,18 @@ def test_flats_on_one_count_keep_the_zero_resolution_term():
     assert math.isclose(u["resolution, zero reading"], 0.001 / math.sqrt(12), rel_tol=1e-9)
     assert u["resolution, surface reading"] < 1e-4 * 0.001
     assert res.summary["zero_u_mm"] == 0.0 and res.summary["sagitta_u_mm"] > 0.001 / math.sqrt(12)
+
+
+def test_depth_still_to_grind_at_the_centre():
+    # Textbook sphere: sag(R, h) = R - sqrt(R^2 - h^2) over the half aperture h; the depth still to
+    # grind is sag(R_target, h) - sag(R_now, h), its U from sympy's d sag / dR times U(R) (GUM 5.1.3).
+    rng = np.random.default_rng(2)
+    seatings, _ = session(2500, "concave", scatter=0.0012, rng=rng)
+    s = analyse(seatings, make_profile(), AnalysisSettings(target_radius_mm=2400.0, diameter_mm=150.0)).summary
+    R_sym = sympy.symbols("R", positive=True)
+    sag = R_sym - sympy.sqrt(R_sym**2 - 75**2)
+    want = float(sag.subs(R_sym, 2400.0) - sag.subs(R_sym, s["radius_mm"]))
+    assert s["depth_to_go_mm"] == pytest.approx(want, rel=1e-9)
+    assert s["depth_to_go_mm"] > 0  # a radius still too long: glass still to come out at the centre
+    dsag = float(sympy.diff(sag, R_sym).subs(R_sym, s["radius_mm"]))
+    assert s["depth_to_go_U_mm"] == pytest.approx(abs(dsag) * s["radius_U_mm"], rel=1e-9)
