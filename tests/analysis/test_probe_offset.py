@@ -17,12 +17,7 @@ from hypothesis import strategies as st
 from logger.analysis import geometry
 from logger.analysis.uncertainty import radius_budget
 from logger.config.profile import parse_profile
-
-
-def reading_off_axis(R: float, r: float, rho: float, e: float) -> float:
-    centres = R - math.sqrt((R - rho) ** 2 - r * r)
-    tip = R - math.sqrt(R * R - e * e)
-    return (centres - rho) - tip
+from tests.helpers.exact_construction import reading_off_axis
 
 
 @settings(max_examples=60, deadline=None)
