@@ -116,6 +116,8 @@ def _analyse(seatings: list[Seating], profile: Profile, settings: AnalysisSettin
     summary["surface"] = _surface_sagittas(surf, zero, profile.indicator.sign)
     steady = [d for d in surf if d.accepted]
     _apply(steady, outliers.judge([d.sagitta_mm for d in steady], settings.rejection, step, settings.z_cut))
+    summary["rejection_shift_mm"] = outliers.detectable_shift(
+        [d.sagitta_mm for d in steady if d.accepted], settings.rejection, step, settings.z_cut)
     good = [d for d in surf if d.accepted]
     if not good:
         summary.update(_zero_summary(zero), status="not estimable",
@@ -261,7 +263,7 @@ def _base_summary(profile: Profile, settings: AnalysisSettings) -> dict:
     keys = ("surface zero_mm zero_u_mm zero_t_ref_s drift_mm_per_min drift_model sagitta_mm sagitta_u_mm "
             "radius_mm radius_u_mm radius_U_mm coverage_factor dof_eff focal_length_mm focal_length_U_mm "
             "diameter_mm focal_ratio target_radius_mm radius_to_go_mm sagitta_to_go_mm depth_to_go_mm "
-            "depth_to_go_U_mm").split()
+            "depth_to_go_U_mm rejection_shift_mm").split()
     out = {k: None for k in keys}
     r_cc, rho = profile.contact_mm("concave")
     r_cv, _ = profile.contact_mm("convex")
