@@ -23,7 +23,7 @@ from logger.analysis.calibration import calibration_note
 from logger.analysis.pair import analyse_pair
 from logger.analysis.phases import FLAT, SURFACE, classify, pair_phases
 from logger.analysis.seating import Seating
-from logger.analysis.zero import Zero, fit_zero, zero_u_at
+from logger.analysis.zero import Zero, curvature_p, fit_zero, zero_u_at
 from logger.analysis.uncertainty import Budget, Component, radius_budget, reading_components
 
 
@@ -108,6 +108,7 @@ def _analyse(seatings: list[Seating], profile: Profile, settings: AnalysisSettin
     zero = zero_fit(None)
     for d in flats:
         d.zero_mm = zero.at(d.seating.t_mid_s)
+    _curvature(summary, good_flats, zero)
     if not surf:
         summary.update(_zero_summary(zero), status="no surface seatings",
                        message="Only the flat was seated: the zero is set, no surface measured yet.")
@@ -231,6 +232,18 @@ def _depth_to_go(summary: dict, settings: AnalysisSettings, radius: float, U: fl
                    depth_to_go_U_mm=abs(1.0 - radius / math.sqrt(radius * radius - h * h)) * U)
 
 
+def _curvature(summary: dict, good_flats: list[Decision], zero: Zero) -> None:
+    """With enough flats along a linear zero, test it for curvature and say what to do (docs/measurement.md)."""
+    if zero.model != "linear":
+        return
+    p = curvature_p([d.seating.t_mid_s for d in good_flats], [d.seating.value_mm for d in good_flats])
+    summary["drift_curvature_p"] = p
+    if p is not None and p < 0.05:
+        summary["caution"] = (f"The zero drifted along a curve, not a line (p = {p:.3f}): the glass or the frame "
+                              "is still changing temperature. Let it settle, and seat the flat between surface "
+                              "seatings.")
+
+
 def _apply(ds: list[Decision], verdicts) -> None:
     for d, (rejected, score, reason) in zip(ds, verdicts):
         d.score = score
@@ -263,7 +276,7 @@ def _base_summary(profile: Profile, settings: AnalysisSettings) -> dict:
     keys = ("surface zero_mm zero_u_mm zero_t_ref_s drift_mm_per_min drift_model sagitta_mm sagitta_u_mm "
             "radius_mm radius_u_mm radius_U_mm coverage_factor dof_eff focal_length_mm focal_length_U_mm "
             "diameter_mm focal_ratio target_radius_mm radius_to_go_mm sagitta_to_go_mm depth_to_go_mm "
-            "depth_to_go_U_mm rejection_shift_mm").split()
+            "depth_to_go_U_mm rejection_shift_mm drift_curvature_p caution").split()
     out = {k: None for k in keys}
     r_cc, rho = profile.contact_mm("concave")
     r_cv, _ = profile.contact_mm("convex")

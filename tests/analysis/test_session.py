@@ -329,3 +329,37 @@ def test_depth_still_to_grind_at_the_centre():
     assert s["depth_to_go_mm"] > 0  # a radius still too long: glass still to come out at the centre
     dsag = float(sympy.diff(sag, R_sym).subs(R_sym, s["radius_mm"]))
     assert s["depth_to_go_U_mm"] == pytest.approx(abs(dsag) * s["radius_U_mm"], rel=1e-9)
+
+
+def _flat_times():
+    return np.array([0, 5, 10, 15, 20, 60, 65, 70, 75, 80, 40.0])  # five before, five after, one between
+
+
+def test_curvature_p_is_the_nested_f_test_and_false_alarms_five_percent():
+    # Reference: the nested-model F test (linear vs quadratic least squares, scipy.stats.f), which equals the
+    # t test on the quadratic coefficient (t^2 = F); and by simulation, truly linear drift with normal scatter
+    # gives p < 0.05 in 5 % of sessions (binomial SE over 4000: 0.0034).
+    from logger.analysis.zero import curvature_p
+    rng = np.random.default_rng(9)
+    t = _flat_times()
+    x = 0.002 + 1e-5 * t + rng.normal(0, 0.0008, len(t))
+    rss = [float(np.sum((x - np.polyval(np.polyfit(t, x, d), t)) ** 2)) for d in (1, 2)]
+    F = (rss[0] - rss[1]) / (rss[1] / (len(t) - 3))
+    assert curvature_p(t, x) == pytest.approx(float(stats.f.sf(F, 1, len(t) - 3)), rel=1e-6)
+    alarms = sum(curvature_p(t, 1e-5 * t + rng.normal(0, 0.0008, len(t))) < 0.05 for _ in range(4000))
+    assert 0.04 <= alarms / 4000 <= 0.06
+    assert curvature_p(t[:4], x[:4]) is None
+
+
+def test_a_zero_still_settling_raises_the_caution():
+    # A zero creeping along a curve (glass cooling after washing: 5 um over the session, invented) is told.
+    t = _flat_times()
+    seatings = [Seating(i, tt, tt + 2.0, 4e-6 * (tt - 40) ** 2 / 16 * 0.25, 0.0, 200) for i, tt in enumerate(t)]
+    s_true = three_ball_reading(*LEGS, BALL / 2, 2400.0, "concave")
+    seatings += [Seating(20 + i, 25.0 + 3 * i, 26.5 + 3 * i, -s_true, 0.0, 200) for i in range(4)]
+    seatings += [Seating(30 + i, 45.0 + 3 * i, 46.5 + 3 * i, -s_true, 0.0, 200) for i in range(4)]
+    seatings.sort(key=lambda x: x.t_start_s)
+    seatings = [Seating(i, x.t_start_s, x.t_end_s, x.value_mm, x.spread_mm, x.n) for i, x in enumerate(seatings)]
+    s = analyse(seatings, make_profile(), AnalysisSettings()).summary
+    assert s["drift_model"] == "linear" and s["drift_curvature_p"] < 0.05
+    assert "settle" in s["caution"]
