@@ -24,7 +24,7 @@ from logger.analysis.pair import analyse_pair
 from logger.analysis.phases import FLAT, SURFACE, classify, pair_phases
 from logger.analysis.seating import Seating
 from logger.analysis.zero import Zero, curvature_p, fit_zero, zero_u_at
-from logger.analysis.uncertainty import Budget, Component, radius_budget, reading_components
+from logger.analysis.uncertainty import Budget, Component, coverage_interval_U, radius_budget, reading_components
 
 
 
@@ -209,14 +209,16 @@ def _result(decisions, good, good_flats, zero: Zero, zero_fit, summary: dict, pr
     comps.append(Component("zero on the flat", u_zero, 1.0, zero.dof, "A", "t" if math.isfinite(zero.dof) else "normal"))
     budget = radius_budget(profile.spherometer, surface, s_mean, comps)
     u_sag = math.sqrt(sum(c.u**2 for c in comps))
+    U, method = coverage_interval_U(budget, profile.spherometer, surface, s_mean, comps)
     summary.update(
         status="ok",
         message=("Every surface seating showed the same count: the result cannot be finer than one count."
                  if same_count else "Measured."),
-        sagitta_u_mm=u_sag, within_seating_sd_mm=within, radius_u_mm=budget.u_c, radius_U_mm=budget.U, coverage_factor=budget.k,
-        dof_eff=_finite(budget.nu_eff), focal_length_U_mm=budget.U / 2.0, budget=budget.as_dict()["components"],
+        sagitta_u_mm=u_sag, within_seating_sd_mm=within, radius_u_mm=budget.u_c, radius_U_mm=U, coverage_factor=U / budget.u_c,
+        radius_U_gum_mm=budget.U, coverage_method=method,
+        dof_eff=_finite(budget.nu_eff), focal_length_U_mm=U / 2.0, budget=budget.as_dict()["components"],
     )
-    _depth_to_go(summary, settings, radius, budget.U)
+    _depth_to_go(summary, settings, radius, U)
     return SessionResult(decisions, summary, budget)
 
 

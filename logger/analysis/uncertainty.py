@@ -373,3 +373,24 @@ def seatings_needed(
     per_seating = (geometry.dradius_dsagitta(sagitta_mm, ring_radius_mm) * scatter_mm) ** 2 * (1.0 + zero_factor)
     # The tiny allowance keeps an exact integer ratio from rounding up by one.
     return max(1, math.ceil(per_seating / room * (1.0 - 1e-12)))
+
+
+MC_TRIALS = 20_000  # for the coverage interval: its 95 % ends are then known to about 1 %
+
+
+def coverage_interval_U(budget: Budget, spherometer, surface: str, sagitta_mm: float,
+                        sagitta_components: Sequence[Component]) -> tuple[float, str]:
+    """The expanded uncertainty, and how it was found.
+
+    When rectangular terms carry most of u_c^2, the output is far from normal
+    and k = 2 overstates U (a rectangle's 95 % half-width is 1.65 u); the
+    probabilistically symmetric coverage interval of the Monte Carlo then
+    gives U as half its width (JCGM 101:2008 7.7), drawn with a fixed seed so
+    that a replay repeats it exactly.  Otherwise the GUM's k u_c.
+    """
+    rect = math.fsum(c.contribution**2 for c in budget.components if c.distribution == "rectangular")
+    if budget.u_c == 0 or rect <= 0.5 * budget.u_c**2:
+        return budget.U, "GUM k u_c"
+    draws = monte_carlo_radius(spherometer, surface, sagitta_mm, sagitta_components, n=MC_TRIALS, seed=0)
+    lo, hi = np.quantile(draws, [(1 - budget.p) / 2, (1 + budget.p) / 2])
+    return float(hi - lo) / 2.0, "Monte Carlo coverage interval (JCGM 101)"
