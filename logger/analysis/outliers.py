@@ -4,15 +4,20 @@ Every test returns, for each value, (rejected, score, reason) and never
 deletes anything: the session keeps rejected seatings in its files.
 
 * modified z-score (Iglewicz & Hoaglin 1993): M = 0.6745 (x - median) / MAD,
-  rejected when |M| > the z cut (3.5, their recommendation).  The MAD is floored at the indicator step: with
-  quantised readings many seatings show the same count, the MAD becomes zero
-  and every honest seating one count off would otherwise look like an outlier.
+  rejected when |M| > the z cut (3.5, their recommendation).
 * Grubbs' test, two-sided, repeated one value at a time (NIST/SEMATECH
   e-Handbook of Statistical Methods, section 1.3.5.17), at a significance
   level alpha (0.05 by default).
 * Chauvenet's criterion: reject when n * P(|Z| >= z) < 1/2.  It takes no
   parameter: the 1/2 is the criterion itself (tuning it makes another test).
-For the last two the standard deviation is floored at the step likewise.
+With quantised readings many seatings show the same count and the spread
+becomes zero, so every honest seating one count off would look like an
+outlier: `judge` floors the MAD, and the SD of the last two, at the
+indicator step.  The modified-z cut then sits at 3.5 / 0.6745 = 5.2 counts
+whenever the seatings scatter by less than about a count and a half, and a
+grain that shifts a seating by less goes unseen: `detectable_shift` states
+the smallest shift each test can tell from the scatter, so the summary can
+say so.
 
 `REJECTIONS` maps each method's name to its test and the one parameter that
 tunes it; `METHODS` (the --rejection choices) are its keys, so a new method is
@@ -137,3 +142,28 @@ def judge(values, method: str, floor: float, limit: float | None = None):
     if len(values) < 3:
         return keep_all(values)
     return m.test(values, floor, m.default if limit is None else limit)
+
+
+def detectable_shift(values, method: str, step: float, limit: float | None = None) -> float | None:
+    """The smallest shift of one seating from the others that the named test rejects (same units).
+
+    `values` are the seatings kept; the shifted one is one more; `limit` is the method's parameter
+    (None: its default).  Modified z: cut x max(MAD, step) / 0.6745.
+    Grubbs and Chauvenet judge the shifted seating against a mean and SD that include it: m values with
+    sum of squares S and one more D from their mean score D a / sqrt((S + D^2 a) / m), a = m / (m + 1),
+    which reaches the critical z (Grubbs' G at n = m + 1; Chauvenet's z with n P(|Z| >= z) = 1/2) at
+    D = z sqrt(S / (m a^2 - z^2 a)).  None when nothing is judged (no test, fewer than three seatings)
+    or when no shift is ever rejected.
+    """
+    limit = _method(method).default if limit is None else limit
+    x = np.asarray(values, float)
+    m = len(x)
+    if method == "none" or m < 3:
+        return None
+    if method == "modified-z":
+        return limit * max(float(np.median(np.abs(x - np.median(x)))), step) / MAD_TO_Z
+    n, a = m + 1, m / (m + 1)
+    S = max(float(np.sum((x - x.mean()) ** 2)), (m - 1) * step * step)  # the SD floored at the step
+    z = _grubbs_critical(n, limit) if method == "grubbs" else float(stats.norm.isf(0.25 / n))
+    room = m * a * a - z * z * a
+    return z * math.sqrt(S / room) if room > 0 else None

@@ -70,7 +70,7 @@ def fit_levels(ds, sign: int, with_flat: bool) -> Fit | None:
 
 
 def _sagitta_terms(u_a: float, fit: Fit, step: float, names: tuple[str, str]) -> list[Component]:
-    """The Type A term of the fit and, while the seatings scatter by less than a count, one step per reading."""
+    """The Type A term of the fit and each reading's quantisation bias, dithered by the fit's scatter."""
     steps = [c for c in reading_components(step, fit.sd, 2) if c.kind == "B"]  # the one rule for the step terms
     comps = [Component("seating scatter (least squares, drift fitted)", u_a, 1.0, fit.dof, "A", "t")]
     return comps + [dataclasses.replace(c, name=f"resolution, {n} reading") for c, n in zip(steps, names)]

@@ -23,8 +23,8 @@ from logger.analysis.calibration import calibration_note
 from logger.analysis.pair import analyse_pair
 from logger.analysis.phases import FLAT, SURFACE, classify, pair_phases
 from logger.analysis.seating import Seating
-from logger.analysis.zero import Zero, fit_zero, zero_u_at
-from logger.analysis.uncertainty import Budget, Component, radius_budget, reading_components
+from logger.analysis.zero import Zero, curvature_p, fit_zero, zero_u_at
+from logger.analysis.uncertainty import Budget, Component, coverage_interval_U, radius_budget, reading_components
 
 
 
@@ -126,6 +126,7 @@ def _analyse(seatings: list[Seating], profile: Profile, settings: AnalysisSettin
     zero = zero_fit(None)
     for d in flats:
         d.zero_mm = zero.at(d.seating.t_mid_s)
+    _curvature(summary, good_flats, zero)
     if not surf:
         summary.update(_zero_summary(zero), status="no surface seatings",
                        message="Only the flat was seated: the zero is set, no surface measured yet.")
@@ -134,6 +135,8 @@ def _analyse(seatings: list[Seating], profile: Profile, settings: AnalysisSettin
     summary["surface"] = _surface_sagittas(surf, zero, profile.indicator.sign)
     steady = [d for d in surf if d.accepted]
     _apply(steady, outliers.judge([d.sagitta_mm for d in steady], settings.rejection, step, settings.rejection_limit))
+    summary["rejection_shift_mm"] = outliers.detectable_shift(
+        [d.sagitta_mm for d in steady if d.accepted], settings.rejection, step, settings.rejection_limit)
     good = [d for d in surf if d.accepted]
     if not good:
         summary.update(_zero_summary(zero), status="not estimable",
@@ -217,19 +220,48 @@ def _result(decisions, good, good_flats, zero: Zero, zero_fit, summary: dict, pr
             "One surface seating gives a radius but no uncertainty: seat the surface again."))
         return SessionResult(decisions, summary)
 
-    # scatter, and each reading's step term while that reading scatters by less than one count
-    comps = reading_components(step, sd, n, zero_scatter_mm=flat_sd if flat_sd is not None else sd)
+    # scatter, and each reading's quantisation bias, dithered by the scatter and the noise within seatings
+    within = float(np.sqrt(np.mean([d.seating.spread_mm**2 for d in good + good_flats])))
+    comps = reading_components(step, sd, n, zero_scatter_mm=flat_sd if flat_sd is not None else sd,
+                               within_sd_mm=within)
     comps.append(Component("zero on the flat", u_zero, 1.0, zero.dof, "A", "t" if math.isfinite(zero.dof) else "normal"))
     budget = radius_budget(profile.spherometer, surface, s_mean, comps)
     u_sag = math.sqrt(sum(c.u**2 for c in comps))
+    U, method = coverage_interval_U(budget, profile.spherometer, surface, s_mean, comps)
     summary.update(
         status="ok",
         message=("Every surface seating showed the same count: the result cannot be finer than one count."
                  if same_count else "Measured."),
-        sagitta_u_mm=u_sag, radius_u_mm=budget.u_c, radius_U_mm=budget.U, coverage_factor=budget.k,
-        dof_eff=_finite(budget.nu_eff), focal_length_U_mm=budget.U / 2.0, budget=budget.as_dict()["components"],
+        sagitta_u_mm=u_sag, within_seating_sd_mm=within, radius_u_mm=budget.u_c, radius_U_mm=U, coverage_factor=U / budget.u_c,
+        radius_U_gum_mm=budget.U, coverage_method=method,
+        dof_eff=_finite(budget.nu_eff), focal_length_U_mm=U / 2.0, budget=budget.as_dict()["components"],
     )
+    _depth_to_go(summary, settings, radius, U)
     return SessionResult(decisions, summary, budget)
+
+
+def _depth_to_go(summary: dict, settings: AnalysisSettings, radius: float, U: float) -> None:
+    """Depth still to grind at the centre over the full aperture D, for a sphere:
+    sag(R_target, D/2) - sag(R_now, D/2), sag(R, h) = R - sqrt(R^2 - h^2); its U by the
+    sensitivity d sag / dR = 1 - R / sqrt(R^2 - h^2) (GUM 5.1.3; the target is exact)."""
+    d, tr = settings.diameter_mm, settings.target_radius_mm
+    if not (d and tr) or d / 2 >= min(radius, tr):
+        return
+    h = d / 2.0
+    summary.update(depth_to_go_mm=geometry.aperture_depth_mm(tr, d) - geometry.aperture_depth_mm(radius, d),
+                   depth_to_go_U_mm=abs(1.0 - radius / math.sqrt(radius * radius - h * h)) * U)
+
+
+def _curvature(summary: dict, good_flats: list[Decision], zero: Zero) -> None:
+    """With enough flats along a linear zero, test it for curvature and say what to do (docs/measurement.md)."""
+    if zero.model != "linear":
+        return
+    p = curvature_p([d.seating.t_mid_s for d in good_flats], [d.seating.value_mm for d in good_flats])
+    summary["drift_curvature_p"] = p
+    if p is not None and p < 0.05:
+        summary["caution"] = (f"The zero drifted along a curve, not a line (p = {p:.3f}): the glass or the frame "
+                              "is still changing temperature. Let it settle, and seat the flat between surface "
+                              "seatings.")
 
 
 def _apply(ds: list[Decision], verdicts) -> None:
@@ -263,7 +295,8 @@ def _base_summary(profile: Profile, settings: AnalysisSettings) -> dict:
     """Every key present from the first moment, null where not yet known (never NaN)."""
     keys = ("surface zero_mm zero_u_mm zero_t_ref_s drift_mm_per_min drift_model sagitta_mm sagitta_u_mm "
             "radius_mm radius_u_mm radius_U_mm coverage_factor dof_eff focal_length_mm focal_length_U_mm "
-            "diameter_mm focal_ratio target_radius_mm radius_to_go_mm sagitta_to_go_mm").split()
+            "diameter_mm focal_ratio target_radius_mm radius_to_go_mm sagitta_to_go_mm depth_to_go_mm "
+            "depth_to_go_U_mm rejection_shift_mm drift_curvature_p caution").split()
     out = {k: None for k in keys}
     r_cc, rho = profile.contact_mm("concave")
     r_cv, _ = profile.contact_mm("convex")

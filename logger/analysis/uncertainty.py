@@ -81,24 +81,65 @@ def scatter_component(scatter_mm: float, n: int, name: str = "seating scatter") 
     return Component(name, scatter_mm / math.sqrt(n), dof=n - 1, kind="A", distribution="t")
 
 
-def reading_components(resolution_mm: float, scatter_mm: float | None = None, n: int | None = None,
-                       zero_scatter_mm: float | None = None) -> list[Component]:
-    """The sagitta's own terms: the seating scatter of a mean of n (when known) and the indicator's step.
+def quantisation_bias_rms_mm(step_mm: float, dither_sd_mm: float) -> float:
+    """RMS, over the reading's unknown offset within a step, of the bias of a mean of quantised readings.
 
-    The sagitta is a surface reading minus a zero reading, each quantised.
-    Averaging beats the step only when the seatings scatter by at least
-    about one count; then the scatter already holds the quantisation and that
-    reading's resolution term is left out.  Below one count (or with no
-    scatter known) it stays.  The surface term follows `scatter_mm`; the zero
-    term follows `zero_scatter_mm` (the flat seatings' own scatter) when it is
-    given, else the same `scatter_mm`.
+    A rounding quantiser of step q fed x + Gaussian noise of SD sigma has
+    E[Q(x)] - x = (q / pi) sum_k (-1)^(k+1) / k exp(-2 pi^2 k^2 sigma^2 / q^2) sin(2 pi k x / q)
+    (Widrow and Kollar, Quantization Noise, 2008: the characteristic-function
+    series).  A mean of many such readings keeps this bias whatever n is, so
+    it is a Type B term.  Over an offset x uniform within a step the sines are
+    orthogonal, and the RMS is sqrt(sum of squared amplitudes / 2): q / sqrt(12)
+    at no noise (GUM F.2.2.1), about 0.04 q at sigma = 0.3 q, 0.002 q at 0.5 q.
+    It falls smoothly as sigma grows; no step is ever switched on or off.
+    """
+    q, sigma = float(step_mm), float(dither_sd_mm)
+    if not (q > 0 and sigma >= 0 and math.isfinite(sigma)):
+        raise ValueError(f"quantisation: step must be > 0 and noise >= 0, got {step_mm!r}, {dither_sd_mm!r}")
+    if sigma == 0.0:
+        return q / math.sqrt(12.0)
+    a = 4.0 * math.pi**2 * sigma**2 / q**2  # squared amplitude k: (q/pi)^2 exp(-a k^2) / k^2
+    kmax = int(min(200_000, 6.0 / math.sqrt(a) + 20))  # exp(-a k^2) < e^-36 beyond
+    k = np.arange(1, kmax + 1, dtype=float)
+    total = math.fsum(np.exp(-a * k * k) / (k * k))
+    total += math.exp(-a * kmax * kmax) / (kmax + 0.5)  # the 1/k^2 tail when sigma is tiny (< 3e-5 q)
+    return q / math.pi * math.sqrt(total / 2.0)
+
+
+def dither_sd_mm(step_mm: float, scatter_mm: float | None, within_sd_mm: float = 0.0) -> float:
+    """The noise that dithers the step for a mean of seatings: between seatings and within each one.
+
+    A seating's value is a mean of samples dithered by the within-seating
+    noise; the seatings' own scatter dithers them again, and two Gaussian
+    dithers add in quadrature.  Both SDs are measured on quantised readings,
+    whose variance averaged over the offset is sigma^2 + q^2 / 12
+    (Sheppard's correction), so q^2 / 12 comes off each first (floored at
+    zero): this errs towards less dither, that is a larger term.
+    """
+    q2 = step_mm * step_mm / 12.0
+    between = 0.0 if scatter_mm is None else max(scatter_mm * scatter_mm - q2, 0.0)
+    within = max(within_sd_mm * within_sd_mm - q2, 0.0)
+    return math.sqrt(between + within)
+
+
+def reading_components(resolution_mm: float, scatter_mm: float | None = None, n: int | None = None,
+                       zero_scatter_mm: float | None = None, within_sd_mm: float = 0.0) -> list[Component]:
+    """The sagitta's own terms: the seating scatter of a mean of n (when known) and each reading's step.
+
+    The sagitta is a surface reading minus a zero reading, each a mean of
+    quantised readings at its own unknown offset within a step, so each keeps
+    its own quantisation bias (`quantisation_bias_rms_mm`), dithered by
+    `dither_sd_mm` of its scatter (`scatter_mm` for the surface,
+    `zero_scatter_mm` for the zero, else the same) and of `within_sd_mm`,
+    the noise within a seating.  With no scatter known the whole step stays.
+    Rectangular for the Monte Carlo: the bias is bounded, and a rectangle of
+    the same u is the wider of the shapes it takes (sawtooth to sine).
     """
     comps = [] if scatter_mm is None else [scatter_component(scatter_mm, n)]
     zero_sd = scatter_mm if zero_scatter_mm is None else zero_scatter_mm
-    if scatter_mm is None or scatter_mm < resolution_mm:
-        comps.append(resolution_component("resolution, surface reading", resolution_mm))
-    if zero_sd is None or zero_sd < resolution_mm:
-        comps.append(resolution_component("resolution, zero reading", resolution_mm))
+    for which, sd in (("surface", scatter_mm), ("zero", zero_sd)):
+        u = quantisation_bias_rms_mm(resolution_mm, dither_sd_mm(resolution_mm, sd, within_sd_mm))
+        comps.append(Component(f"resolution, {which} reading", u, distribution="rectangular"))
     return comps
 
 
@@ -230,7 +271,45 @@ def radius_budget(spherometer, surface: str, sagitta_mm: float, sagitta_componen
             comps.append(
                 Component(_INPUT_LABELS.get(name, name), u, _input_sensitivity(spherometer, surface, sagitta_mm, name))
             )
+    comps += systematic_components(spherometer, surface, sagitta_mm, value, dR_ds)
     return Budget("radius of curvature", value, tuple(comps))
+
+
+_LEGS = ("a", "b", "c", *(f"{how}_{x}" for how in ("outside", "inside") for x in "abc"))
+
+
+def systematic_components(spherometer, surface: str, sagitta_mm: float, radius_mm: float,
+                          dR_ds: float) -> list[Component]:
+    """The rig's error sources beyond its measured inputs (profile [uncertainty], logger.config.profile).
+
+    The flat's flatness F and the indicator's error of indication E each
+    shift the sagitta by up to +-F, +-E: rectangular, sensitivity dR/ds.  A
+    probe off the circumcentre by up to e makes R read long by up to
+    R e^2 / r^2 (about; tests/analysis/test_probe_offset.py builds it
+    exactly); not knowing the sign of a one-sided bias that is not
+    corrected, it is carried as a symmetric rectangle of that half-width,
+    which covers it.  A caliper error common to the three legs is one input
+    entering each leg with sensitivity 1: GUM 5.2 with correlation
+    u_common^2 / (u_common^2 + u_leg^2) between the legs; its sensitivity
+    is the sum of the three legs'.
+    """
+    sys_mm = spherometer.systematic_mm
+    out = []
+    for key, label in (("flat_flatness", "reference flat's flatness over the ring"),
+                       ("indicator_error", "indicator's error of indication")):
+        if sys_mm.get(key, 0.0) > 0:
+            out.append(Component(label, sys_mm[key] / math.sqrt(3.0), dR_ds, distribution="rectangular"))
+    e = sys_mm.get("probe_offset", 0.0)
+    if e > 0:
+        ring_mm = spherometer.contact_mm(surface)[0]
+        out.append(Component("probe offset from the circumcentre", radius_mm * e * e / ring_mm**2 / math.sqrt(3.0),
+                             distribution="rectangular"))
+    common = sys_mm.get("caliper_common", 0.0)
+    if common > 0:
+        legs = [x for x in _LEGS if x in spherometer.params_mm]
+        out.append(Component("caliper error common to the legs", common,
+                             sum(_input_sensitivity(spherometer, surface, sagitta_mm, x) for x in legs)))
+    return out
 
 
 def _draw(rng: np.random.Generator, c: Component, n: int) -> np.ndarray:
@@ -257,22 +336,32 @@ def monte_carlo_radius(
     s = np.full(n, float(sagitta_mm))
     for c in sagitta_components:
         s = s + c.sensitivity * _draw(rng, c, n)
+    sys_mm = spherometer.systematic_mm
+    for key in ("flat_flatness", "indicator_error"):  # rectangular, half-width as stated
+        s = s + rng.uniform(-1.0, 1.0, n) * sys_mm.get(key, 0.0)
+    common = rng.normal(0.0, sys_mm.get("caliper_common", 0.0), n)  # one draw shared by the three legs
     params = {
         name: x + (rng.normal(0.0, spherometer.u_mm.get(name, 0.0), n) if spherometer.u_mm.get(name, 0.0) > 0 else 0.0)
+        + (common if name in _LEGS else 0.0)
         for name, x in spherometer.params_mm.items()
     }
     ring_mm, foot_mm = spherometer.contact_mm(surface, params)
-    return np.broadcast_to(geometry.radius_from_sagitta_mm(s, ring_mm, foot_mm, surface), (n,)).copy()
+    R = np.broadcast_to(geometry.radius_from_sagitta_mm(s, ring_mm, foot_mm, surface), (n,)).copy()
+    e = sys_mm.get("probe_offset", 0.0)  # as in systematic_components: +-R e^2 / r^2, rectangular
+    return R + rng.uniform(-1.0, 1.0, n) * R * e * e / ring_mm**2
 
 
 def seatings_needed(
-    target_u_radius_mm: float, scatter_mm: float, sagitta_mm: float, ring_radius_mm: float, other_u_radius_mm: float = 0.0
+    target_u_radius_mm: float, scatter_mm: float, sagitta_mm: float, ring_radius_mm: float, other_u_radius_mm: float = 0.0,
+    zero_factor: float = 0.0,
 ) -> int | None:
     """Seatings n on the surface so that the radius's standard uncertainty reaches the target.
 
-    u(R)^2 = (dR/ds * scatter / sqrt(n))^2 + other^2 <= target^2, the
-    scatter term being the Type A standard uncertainty of a mean (GUM 4.2.3).
-    None when the other terms alone already reach the target.
+    u(R)^2 = (dR/ds * scatter)^2 (1 + zero_factor) / n + other^2 <= target^2:
+    the scatter term is the Type A standard uncertainty of a mean (GUM 4.2.3),
+    and the zero's own Type A term is zero_factor times it (1 when the flat
+    is seated as often as the surface, with the same scatter; 0 leaves the
+    zero out).  None when the other terms alone already reach the target.
     """
     if not (target_u_radius_mm > 0):
         raise UserError(f"the wanted radius uncertainty must be positive, got {target_u_radius_mm!r}")
@@ -281,6 +370,27 @@ def seatings_needed(
     room = target_u_radius_mm**2 - other_u_radius_mm**2
     if room <= 0:
         return None
-    per_seating = (geometry.dradius_dsagitta(sagitta_mm, ring_radius_mm) * scatter_mm) ** 2
+    per_seating = (geometry.dradius_dsagitta(sagitta_mm, ring_radius_mm) * scatter_mm) ** 2 * (1.0 + zero_factor)
     # The tiny allowance keeps an exact integer ratio from rounding up by one.
     return max(1, math.ceil(per_seating / room * (1.0 - 1e-12)))
+
+
+MC_TRIALS = 20_000  # for the coverage interval: its 95 % ends are then known to about 1 %
+
+
+def coverage_interval_U(budget: Budget, spherometer, surface: str, sagitta_mm: float,
+                        sagitta_components: Sequence[Component]) -> tuple[float, str]:
+    """The expanded uncertainty, and how it was found.
+
+    When rectangular terms carry most of u_c^2, the output is far from normal
+    and k = 2 overstates U (a rectangle's 95 % half-width is 1.65 u); the
+    probabilistically symmetric coverage interval of the Monte Carlo then
+    gives U as half its width (JCGM 101:2008 7.7), drawn with a fixed seed so
+    that a replay repeats it exactly.  Otherwise the GUM's k u_c.
+    """
+    rect = math.fsum(c.contribution**2 for c in budget.components if c.distribution == "rectangular")
+    if budget.u_c == 0 or rect <= 0.5 * budget.u_c**2:
+        return budget.U, "GUM k u_c"
+    draws = monte_carlo_radius(spherometer, surface, sagitta_mm, sagitta_components, n=MC_TRIALS, seed=0)
+    lo, hi = np.quantile(draws, [(1 - budget.p) / 2, (1 + budget.p) / 2])
+    return float(hi - lo) / 2.0, "Monte Carlo coverage interval (JCGM 101)"

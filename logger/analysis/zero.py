@@ -6,6 +6,7 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
+from scipy import stats
 
 
 @dataclass
@@ -63,3 +64,31 @@ def zero_u_at(z: Zero, times, t_s: float) -> float | None:
     sxx = float(np.sum((t - t.mean()) ** 2))
     sd = z.u_mm * math.sqrt(n)
     return sd * math.sqrt(1.0 / n + (t_s - t.mean()) ** 2 / sxx)
+
+
+CURVATURE_MIN_FLATS = 5  # a quadratic has three parameters: at least two degrees of freedom left
+
+
+def curvature_p(times, values) -> float | None:
+    """Two-sided p-value of the quadratic term of the zero against time (t test on its coefficient).
+
+    Ordinary least squares on 1, t, t^2 with n - 3 degrees of freedom; under a truly linear drift
+    with normal scatter p is uniform, so p < 0.05 raises a false alarm in 5 % of sessions (checked
+    by simulation in tests/analysis/test_session.py).  None with fewer than CURVATURE_MIN_FLATS flats
+    or no spread in time.
+    """
+    t = np.asarray(times, float)
+    x = np.asarray(values, float)
+    n = len(x)
+    if n < CURVATURE_MIN_FLATS or np.ptp(t) <= 0:
+        return None
+    u = (t - t.mean()) / np.ptp(t)  # centred and scaled: a well-conditioned design
+    X = np.column_stack([np.ones(n), u, u * u])
+    beta, *_ = np.linalg.lstsq(X, x, rcond=None)
+    resid = x - X @ beta
+    dof = n - 3
+    s2 = float(resid @ resid) / dof
+    if s2 <= 0:
+        return 0.0 if abs(beta[2]) > 0 else 1.0
+    se = math.sqrt(s2 * float(np.linalg.inv(X.T @ X)[2, 2]))
+    return float(2 * stats.t.sf(abs(beta[2]) / se, dof))

@@ -18,7 +18,8 @@ from logger.analysis import geometry
 from logger.errors import UserError
 from logger.config.profile import DEFAULT_U_MM, SENSES, load_profile, parse_profile
 from logger.run.writer import write_atomic
-from logger.analysis.uncertainty import Component, radius_budget, reading_components, seatings_needed
+from logger.analysis.uncertainty import (Component, radius_budget, reading_components, seatings_needed,
+                                         systematic_components)
 from logger.units import UNITS, from_mm, to_mm
 
 
@@ -123,15 +124,18 @@ def plan(profile_path, diameter, focal_ratio, focal_length, scatter, radius_u, a
         "focal_ratio": f_mm / D_mm,
         "diameter": diameter,
         "resolution": from_mm(q_mm, unit),
+        "rig_terms": _rig_terms(profile, s_mm, R_mm),
         "unit": unit,
     }
     if scatter is not None:
         scatter_mm = to_mm(scatter, unit)
-        # Every term but the scatter of the mean: the resolution stays only when the scatter is under one count.
+        # Every term but the scatter of the mean: the step terms, dithered by that scatter.
         other_terms = [c for c in reading_components(q_mm, scatter_mm, 2) if c.kind == "B"]
         other = radius_budget(profile.spherometer, "concave", s_mm, other_terms)
         out["radius_u_without_scatter"] = from_mm(other.u_c, unit)
-        out["seatings_needed"] = seatings_needed(to_mm(radius_u, unit), scatter_mm, s_mm, ring_cc, other.u_c)
+        # as many seatings on the flat as on the surface, same scatter: the zero's Type A term equals the surface's
+        out["seatings_needed"] = seatings_needed(to_mm(radius_u, unit), scatter_mm, s_mm, ring_cc, other.u_c,
+                                                 zero_factor=1.0)
     if as_json:
         _echo_json(out)
         return
@@ -141,14 +145,25 @@ def plan(profile_path, diameter, focal_ratio, focal_length, scatter, radius_u, a
     click.echo(f"this spherometer reads {g('target_sagitta')} on the mirror (concave)"
                f" and {g('tool_sagitta')} on the matching convex tool")
     click.echo(f"one indicator count ({g('resolution')}) moves R by {g('radius_per_count')} at the target")
+    if out["rig_terms"]:
+        click.echo("the rig's other sources, u(R) at the target: " + ", ".join(
+            f"{name} {v:.3g} {unit}" for name, v in out["rig_terms"].items()) + " ([uncertainty] in the profile)")
     if scatter is not None:
         n = out["seatings_needed"]
         want = f"u(R) = {radius_u:g} {unit} with {scatter:g} {unit} scatter"
         if n is None:
-            click.echo(f"{want}: not reachable; resolution and spherometer terms alone give u(R) = "
+            click.echo(f"{want}: not reachable; resolution, spherometer and rig terms alone give u(R) = "
                        f"{g('radius_u_without_scatter')}")
         else:
-            click.echo(f"seatings needed for {want}: {n}")
+            click.echo(f"seatings needed for {want}: {n} on the mirror and {n} on the flat")
+
+
+def _rig_terms(profile, s_mm: float, R_mm: float) -> dict:
+    """Each of the rig's other sources as its share of u(R) at the target, in the profile's unit."""
+    ring_mm = profile.contact_mm("concave")[0]
+    comps = systematic_components(profile.spherometer, "concave", s_mm, R_mm,
+                                  geometry.dradius_dsagitta(s_mm, ring_mm))
+    return {c.name: from_mm(c.contribution, profile.unit) for c in comps}
 
 
 def toml_value(value) -> str:

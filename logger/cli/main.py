@@ -25,6 +25,7 @@ COMMANDS = {
     "plan": "logger.cli.calc:plan",
     "new-profile": "logger.cli.calc:new_profile",
     "calibrate": "logger.cli.calibrate:calibrate_cmd",
+    "indicator-check": "logger.cli.indicator:indicator_check",
     "replay": "logger.cli.replay:replay_cmd",
     "capture": "logger.cli.capture:capture_cmd",
     "report": "logger.cli.reports:report_command",

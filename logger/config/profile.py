@@ -39,6 +39,26 @@ DEFAULT_U_MM = {
     "ring_radius": 0.01,
 }
 
+# Error sources of a real rig beyond the measured inputs, as bounds (half-widths, mm) unless said;
+# each enters the budget (logger.analysis.uncertainty.systematic_components).  Common practice,
+# from memory:
+# - flat_flatness: the reference flat's departure over the ring.  A good granite plate or thick
+#   float glass keeps within about half a micrometre over a 70 mm ring; 1 um is about 7 mm of R
+#   on the example rig at f/8.
+# - indicator_error: the indicator's error of indication over the travel used (a sagitta of a few
+#   tenths of a millimetre).  Makers state a few micrometres over the whole travel; one micrometre
+#   over a short stretch is a fair guess.  Measure yours with `saglog indicator-check`.
+# - probe_offset: how far the probe may sit from the circumcentre of the ball centres; R then reads
+#   long by about R e^2 / r^2.  Half a millimetre for a carefully drilled home-made frame.
+# - caliper_common: standard uncertainty of a caliper error shared by all three leg readings (its
+#   zero or scale), k = 1; about a quarter of a +-0.02 mm caliper's specification.
+DEFAULT_SYSTEMATIC_MM = {
+    "flat_flatness": 0.0005,
+    "indicator_error": 0.001,
+    "probe_offset": 0.5,
+    "caliper_common": 0.005,
+}
+
 _TOP_KEYS = {"unit", "name", "spherometer", "indicator", "uncertainty", "calibration"}
 # [calibration] (kind "calibrated", written by saglog calibrate): what the measurement uses, and the record.
 _CAL_USED = {"ring_radius_per_ball_diameter", "sagitta_min", "sagitta_max"}
@@ -52,7 +72,7 @@ _IND_KEYS = ({"resolution"}, {"sense", "unit"})
 # [uncertainty] keys are named for the [spherometer] key they apply to; an earlier key that stood for
 # several is still read: ring_diameter is both ring diameters (a stated specific one wins).
 _U_EARLIER = {"ring_diameter": ("inner_diameter", "outer_diameter")}
-_U_KEYS = set(DEFAULT_U_MM) | set(_U_EARLIER)
+_U_KEYS = set(DEFAULT_U_MM) | set(DEFAULT_SYSTEMATIC_MM) | set(_U_EARLIER)
 
 
 @dataclass(frozen=True)
@@ -81,6 +101,7 @@ class Spherometer:
     params_mm: dict = field(default_factory=dict)
     u_mm: dict = field(default_factory=dict)
     ball_coupling: float = 0.0  # calibrated: dr/dd of the ring radius found with this ball (unit-free)
+    systematic_mm: dict = field(default_factory=dict)  # DEFAULT_SYSTEMATIC_MM's keys: the rig's other sources
 
     def contact_mm(self, surface: str, params: dict | None = None) -> tuple[float, float]:
         p = self.params_mm if params is None else params
@@ -172,7 +193,8 @@ def parse_profile(data: dict, source: str = "profile") -> Profile:
     u_of = _uncertainties(data, unit, source)
     params, u = _KIND_PARAMS[kind](sph, unit, where, u_of)
     coupling, sag_range = _calibration(data.get("calibration"), kind, unit, source)
-    spherometer = Spherometer(kind, params, u, coupling)
+    systematic = {k: u_of[k] for k in DEFAULT_SYSTEMATIC_MM if k != "caliper_common" or kind == "three-ball"}
+    spherometer = Spherometer(kind, params, u, coupling, systematic)
     indicator = _indicator(data["indicator"], unit, source)
     name = data.get("name", "")
     if not isinstance(name, str):
@@ -191,7 +213,7 @@ def _uncertainties(data: dict, unit: str, source: str) -> dict[str, float]:
         for k in keys:
             if earlier in stated and k not in stated:
                 stated[k] = stated[earlier]
-    return {k: stated.get(k, default) for k, default in DEFAULT_U_MM.items()}
+    return {k: stated.get(k, default) for k, default in (DEFAULT_U_MM | DEFAULT_SYSTEMATIC_MM).items()}
 
 
 def _three_ball(sph: dict, unit: str, where: str, u_of: dict) -> tuple[dict, dict]:

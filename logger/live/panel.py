@@ -121,5 +121,8 @@ class LivePanel(RunStatus):
         if s.get("target_radius_mm") is not None:
             t.add_row("still to go", f"radius {length_text(s.get('radius_to_go_mm'), u, 1)}, "
                                      f"sagitta {length_text(s.get('sagitta_to_go_mm'), u, 5)} (as this spherometer reads)")
+            if s.get("depth_to_go_mm") is not None:
+                t.add_row("depth still to grind", f"{length_text(s['depth_to_go_mm'], u, 4)} +- "
+                                                  f"{length_text(s.get('depth_to_go_U_mm'), u, 4)} at the centre (sphere)")
         return Panel(Group(Text(big, style="bold"), Text(f"radius of curvature [{u}]"), t),
                      title=f"saglog  {self.device}", border_style="bold")

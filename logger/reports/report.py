@@ -123,6 +123,8 @@ def header_lines(run: Run, unit: str) -> list[str]:
     )
     if s.get("same_count"):
         counts += "; every seating showed the same count (resolution term kept)"
+    if is_number(s.get("rejection_shift_mm")):
+        counts += f"; a seating must be off by {fmt_len(s['rejection_shift_mm'], unit, 4)} to be rejected"
     when = run.started
     span = _num(s, "t_end_s")
     when_text = "start not recorded" if pd.isna(when) else when.strftime("%Y-%m-%d %H:%M:%S UTC")

@@ -30,6 +30,7 @@ from pathlib import Path
 import numpy as np
 
 from logger.analysis import geometry
+from logger.simulator.systematics import draw_systematics
 from logger.errors import UserError
 from logger.formats.recording import RecWriter, gap_comment
 from logger.units import from_mm, to_mm
@@ -102,7 +103,9 @@ class SimRun:
         self.seed = seed
         pieces = ("concave", "convex") if sc.surface == "pair" else (sc.surface,)
         sags = {f: geometry.probe_sagitta_mm(sc.radius_mm, *sc.contact_mm(f), f) for f in pieces}
-        disps = [-sags[f] if f == "concave" else sags[f] for f in pieces]  # a pair: mirror, tool, mirror, ...
+        # a probe off the axis meets the sphere nearer the balls' plane by R - sqrt(R^2 - e^2), either surface
+        tip = sc.radius_mm - math.sqrt(sc.radius_mm**2 - sc.probe_offset_mm**2)
+        disps = [-(sags[f] - tip) if f == "concave" else sags[f] - tip for f in pieces]  # mirror, tool, mirror, ...
         ring_r, foot_r = sc.contact_mm(pieces[0])
         sense = sc.profile.indicator.sign
         stop_disp = min(0.0, sc.flat_error_mm, *disps) - sc.lift_mm
@@ -132,7 +135,8 @@ class SimRun:
                 kind, offset = "grit", grit_sign[i] * sc.grit_offset_mm
             elif number in sc.rock_seatings or rock_u[i] < sc.rock_probability:
                 kind, rock_a = "rock", rock_sign[i] * sc.rock_amplitude_mm
-            rel = sense * (sc.flat_error_mm if phase == "flat" else disps[k % len(disps)]) + scatter[i] + offset
+            rel = (sense * (sc.flat_error_mm if phase == "flat" else disps[k % len(disps)]) * (1 + sc.indicator_scale_error)
+                   + scatter[i] + offset)
             t_seat, t_lift = t, t + sc.seated_s
             segs.append(_Segment(t_seat, rel, _seg_value(segs[-1], t_seat), sc.settle_tau_s, omega,
                                  rock_a, 1.0 / rock_period[i] if rock_a else 0.0))
@@ -278,7 +282,12 @@ class SimRun:
 def simulate(scenario: Scenario, seed: int | None = None) -> SimRun:
     """A reproducible session from a scenario (its own seed unless one is given)."""
     s = scenario.seed if seed is None else int(seed)
-    return SimRun(scenario, s)
+    if not scenario.systematics:
+        return SimRun(scenario, s)
+    drawn_scenario, drawn = draw_systematics(scenario, s)
+    run = SimRun(drawn_scenario, s)
+    run.truth["systematics"] = drawn
+    return run
 
 
 def write_recording(run: SimRun, path) -> None:

@@ -43,6 +43,9 @@ class Scenario:
     # the instrument's true geometry where it differs from its profile (None: as the profile says)
     true_legs_mm: tuple[float, float, float] | None = None
     true_ball_mm: float | None = None
+    probe_offset_mm: float = 0.0  # the probe's true distance from the circumcentre of the ball centres
+    indicator_scale_error: float = 0.0  # the display moves by (1 + g) per unit of true travel
+    systematics: bool = False  # draw the four above and the true legs per session (logger.simulator.systematics)
     # session plan
     flat_before: int = 5
     surface_seatings: int = 8

@@ -10,6 +10,7 @@ from hypothesis import given, settings, strategies as st
 from scipy import stats
 
 from logger.analysis import outliers
+from logger.analysis.outliers import detectable_shift, judge
 from logger.errors import UserError
 
 
@@ -122,3 +123,25 @@ def test_each_method_name_runs_its_own_test():
 def test_an_unknown_method_is_a_user_error_never_chauvenet(values):
     with pytest.raises(UserError, match=r"rejection method 'chauvenets' is not known \(known: modified-z, grubbs, chauvenet, none\)"):
         outliers.judge(values, "chauvenets", 1e-6)
+
+
+@pytest.mark.parametrize("method", ["modified-z", "grubbs", "chauvenet"])
+def test_detectable_shift_is_where_the_test_starts_to_reject(method):
+    # The stated smallest shift must be the test's own boundary: one seating moved a little less is
+    # kept, a little more is rejected (modified z: 3.5 MAD / 0.6745, Iglewicz and Hoaglin 1993, with
+    # the MAD floored at the step; Grubbs: NIST/SEMATECH 1.3.5.17; Chauvenet: n P(|Z| >= z) = 1/2).
+    rng = np.random.default_rng(1)
+    base = list(rng.normal(0, 0.002, 11))
+    step = 0.001
+    d = detectable_shift(base, method, step)
+    med = float(np.median(base)) if method == "modified-z" else None
+    for factor, rejected in ((0.9, False), (1.15, True)):
+        x = base + [(med if med is not None else float(np.mean(base))) + factor * d]
+        assert judge(x, method, step)[-1][0] is rejected, (method, factor)
+    assert detectable_shift(base, "none", step) is None and detectable_shift(base[:2], method, step) is None
+
+
+def test_detectable_shift_under_the_one_count_floor():
+    # Identical readings: the MAD is floored at one count q, so the cut sits at 3.5 q / 0.6745 = 5.19 q
+    # (Iglewicz and Hoaglin's constant 0.6745, from memory) - the blind spot the summary now states.
+    assert detectable_shift([0.0] * 10, "modified-z", 0.001) == pytest.approx(3.5 * 0.001 / 0.6745, rel=1e-12)

@@ -15,6 +15,8 @@ import sympy
 from hypothesis import given, settings, strategies as st
 from scipy import stats
 
+from tests.helpers.quantisation import bias_rms_direct
+from logger.config.profile import DEFAULT_SYSTEMATIC_MM
 from tests.helpers.exact_construction import three_ball_reading
 from logger.config.profile import parse_profile
 from logger.run.writer import json_text
@@ -200,6 +202,18 @@ _R_CONCAVE = ((_A * _B * _C) ** 2 / ((_A + _B + _C) * (-_A + _B + _C) * (_A - _B
 _U_CALIPER = 0.02 / math.sqrt(3)
 
 
+def _rig2(dR, vals) -> float:
+    """The rig's other sources at the profile's defaults (logger.config.profile.DEFAULT_SYSTEMATIC_MM):
+    flat and indicator bounds as rectangles on s (GUM 4.3.7), the probe offset's R e^2 / r^2 as a
+    rectangle on R, and one caliper error shared by the three legs (GUM 5.2, correlation via a common
+    input: its sensitivity is dR/da + dR/db + dR/dc)."""
+    d = DEFAULT_SYSTEMATIC_MM
+    R = float(_R_CONCAVE.subs(vals))
+    r2 = float(((_A * _B * _C) ** 2 / ((_A + _B + _C) * (-_A + _B + _C) * (_A - _B + _C) * (_A + _B - _C))).subs(vals))
+    return ((dR[_S] * d["flat_flatness"]) ** 2 + (dR[_S] * d["indicator_error"]) ** 2
+            + (R * d["probe_offset"] ** 2 / r2) ** 2) / 3 + ((dR[_A] + dR[_B] + dR[_C]) * d["caliper_common"]) ** 2
+
+
 def _independent_budget(seatings, flat_idx, surf_idx, q=0.001, p=0.9545):
     """u_c, nu_eff and U of a concave session's radius, rebuilt here from the raw seatings (GUM)."""
     flats = [x for x in seatings if x.index in flat_idx]
@@ -211,11 +225,13 @@ def _independent_budget(seatings, flat_idx, surf_idx, q=0.001, p=0.9545):
     s_mean, sd = float(sag.mean()), float(sag.std(ddof=1))
     flat_sd = math.sqrt(float(np.sum((x_f - (icpt + slope * t_f)) ** 2)) / (n_f - 2))
     u_a, u_zero = sd / math.sqrt(n), _line_se(t_f, x_f, t_s)  # GUM 4.2.3; textbook regression
-    # each reading's step q / sqrt(12) (GUM F.2.2.1) stays while that reading scatters by under a count
-    u_res2 = (q * q / 12) * ((sd < q) + (flat_sd < q))
+    # each reading's quantisation bias, computed directly from the normal CDF (tests/helpers/quantisation.py),
+    # dithered by its scatter and the within-seating spread, each less q^2 / 12 (Sheppard's correction)
+    within2 = max(float(np.mean([x.spread_mm**2 for x in seatings])) - q * q / 12, 0.0)
+    u_res2 = sum(bias_rms_direct(q, math.sqrt(max(v * v - q * q / 12, 0.0) + within2)) ** 2 for v in (sd, flat_sd))
     vals = {_A: LEGS[0], _B: LEGS[1], _C: LEGS[2], _D: BALL, _S: s_mean}
     dR = {x: float(sympy.diff(_R_CONCAVE, x).subs(vals)) for x in (_A, _B, _C, _D, _S)}
-    inst2 = sum((dR[x] * _U_CALIPER) ** 2 for x in (_A, _B, _C, _D))
+    inst2 = sum((dR[x] * _U_CALIPER) ** 2 for x in (_A, _B, _C, _D)) + _rig2(dR, vals)
     terms_a = [(abs(dR[_S]) * u_a, n - 1), (abs(dR[_S]) * u_zero, n_f - 2)]  # Type A with their dof
     u_c = math.sqrt(sum(c * c for c, _ in terms_a) + dR[_S] ** 2 * u_res2 + inst2)  # GUM eq. 10
     nu_eff = u_c**4 / sum(c**4 / nu for c, nu in terms_a if c > 0) if any(c > 0 for c, _ in terms_a) else math.inf
@@ -235,8 +251,8 @@ def test_budget_rebuilt_independently_per_gum():
     assert math.isclose(res.summary["radius_u_mm"], u_c, rel_tol=1e-6)
     assert math.isclose(res.summary["dof_eff"], nu_eff, rel_tol=1e-6)
     assert math.isclose(res.summary["radius_U_mm"], U, rel_tol=1e-6)
-    # scatter above one count: the step is dithered away, no resolution term (docs/measurement.md, common practice)
-    assert not any("resolution" in c.name for c in res.budget.components)
+    # scatter above one count: the step is dithered away, its bias term all but nil (Widrow and Kollar, 2008)
+    assert all(c.u < 1e-6 * 0.001 for c in res.budget.components if "resolution" in c.name)
 
 
 def test_same_count_is_said_and_resolution_kept():
@@ -252,7 +268,11 @@ def test_same_count_is_said_and_resolution_kept():
     # and U is what the GUM gives for two step terms and the instrument, no scatter: k = 2 (nu infinite)
     _, u_c, nu_eff, U = _independent_budget(seatings, {0, 1, 2, 3, 12, 13, 14}, set(range(4, 12)), q)
     assert nu_eff > 1e9 and (s["dof_eff"] is None or s["dof_eff"] > 1e9)  # no scatter left: nu about infinite
-    assert math.isclose(s["radius_u_mm"], u_c, rel_tol=1e-6) and math.isclose(s["radius_U_mm"], U, rel_tol=1e-6)
+    assert math.isclose(s["radius_u_mm"], u_c, rel_tol=1e-6) and math.isclose(s["radius_U_gum_mm"], U, rel_tol=1e-6)
+    # rectangles dominate: U is the Monte Carlo's coverage interval (JCGM 101 7.7), which for a sum of
+    # rectangles and normals lies between a single rectangle's 95.45 % half-width (0.9545 sqrt(3) u) and k = 2
+    assert s["coverage_method"].startswith("Monte Carlo")
+    assert 0.9545 * math.sqrt(3) * u_c * 0.99 <= s["radius_U_mm"] < U
 
 
 def _seatings(values, spread=0.0005):
@@ -292,7 +312,58 @@ def test_flats_on_one_count_keep_the_zero_resolution_term():
     rng = np.random.default_rng(4)
     s_true = three_ball_reading(*LEGS, BALL / 2, 2400.0, "concave")
     values = [0.0] * 4 + list(-s_true + rng.normal(0, 0.0015, 8)) + [0.0] * 3
-    res = analyse(_seatings(values), make_profile(), AnalysisSettings())
-    names = [c.name for c in res.budget.components]
-    assert "resolution, zero reading" in names and "resolution, surface reading" not in names
+    # no noise within a seating either (spread 0): nothing dithers the flats' step
+    res = analyse(_seatings(values, spread=0.0), make_profile(), AnalysisSettings())
+    u = {c.name: c.u for c in res.budget.components}
+    assert math.isclose(u["resolution, zero reading"], 0.001 / math.sqrt(12), rel_tol=1e-9)
+    assert u["resolution, surface reading"] < 1e-4 * 0.001
     assert res.summary["zero_u_mm"] == 0.0 and res.summary["sagitta_u_mm"] > 0.001 / math.sqrt(12)
+
+
+def test_depth_still_to_grind_at_the_centre():
+    # Textbook sphere: sag(R, h) = R - sqrt(R^2 - h^2) over the half aperture h; the depth still to
+    # grind is sag(R_target, h) - sag(R_now, h), its U from sympy's d sag / dR times U(R) (GUM 5.1.3).
+    rng = np.random.default_rng(2)
+    seatings, _ = session(2500, "concave", scatter=0.0012, rng=rng)
+    s = analyse(seatings, make_profile(), AnalysisSettings(target_radius_mm=2400.0, diameter_mm=150.0)).summary
+    R_sym = sympy.symbols("R", positive=True)
+    sag = R_sym - sympy.sqrt(R_sym**2 - 75**2)
+    want = float(sag.subs(R_sym, 2400.0) - sag.subs(R_sym, s["radius_mm"]))
+    assert s["depth_to_go_mm"] == pytest.approx(want, rel=1e-9)
+    assert s["depth_to_go_mm"] > 0  # a radius still too long: glass still to come out at the centre
+    dsag = float(sympy.diff(sag, R_sym).subs(R_sym, s["radius_mm"]))
+    assert s["depth_to_go_U_mm"] == pytest.approx(abs(dsag) * s["radius_U_mm"], rel=1e-9)
+
+
+def _flat_times():
+    return np.array([0, 5, 10, 15, 20, 60, 65, 70, 75, 80, 40.0])  # five before, five after, one between
+
+
+def test_curvature_p_is_the_nested_f_test_and_false_alarms_five_percent():
+    # Reference: the nested-model F test (linear vs quadratic least squares, scipy.stats.f), which equals the
+    # t test on the quadratic coefficient (t^2 = F); and by simulation, truly linear drift with normal scatter
+    # gives p < 0.05 in 5 % of sessions (binomial SE over 4000: 0.0034).
+    from logger.analysis.zero import curvature_p
+    rng = np.random.default_rng(9)
+    t = _flat_times()
+    x = 0.002 + 1e-5 * t + rng.normal(0, 0.0008, len(t))
+    rss = [float(np.sum((x - np.polyval(np.polyfit(t, x, d), t)) ** 2)) for d in (1, 2)]
+    F = (rss[0] - rss[1]) / (rss[1] / (len(t) - 3))
+    assert curvature_p(t, x) == pytest.approx(float(stats.f.sf(F, 1, len(t) - 3)), rel=1e-6)
+    alarms = sum(curvature_p(t, 1e-5 * t + rng.normal(0, 0.0008, len(t))) < 0.05 for _ in range(4000))
+    assert 0.04 <= alarms / 4000 <= 0.06
+    assert curvature_p(t[:4], x[:4]) is None
+
+
+def test_a_zero_still_settling_raises_the_caution():
+    # A zero creeping along a curve (glass cooling after washing: 5 um over the session, invented) is told.
+    t = _flat_times()
+    seatings = [Seating(i, tt, tt + 2.0, 4e-6 * (tt - 40) ** 2 / 16 * 0.25, 0.0, 200) for i, tt in enumerate(t)]
+    s_true = three_ball_reading(*LEGS, BALL / 2, 2400.0, "concave")
+    seatings += [Seating(20 + i, 25.0 + 3 * i, 26.5 + 3 * i, -s_true, 0.0, 200) for i in range(4)]
+    seatings += [Seating(30 + i, 45.0 + 3 * i, 46.5 + 3 * i, -s_true, 0.0, 200) for i in range(4)]
+    seatings.sort(key=lambda x: x.t_start_s)
+    seatings = [Seating(i, x.t_start_s, x.t_end_s, x.value_mm, x.spread_mm, x.n) for i, x in enumerate(seatings)]
+    s = analyse(seatings, make_profile(), AnalysisSettings()).summary
+    assert s["drift_model"] == "linear" and s["drift_curvature_p"] < 0.05
+    assert "settle" in s["caution"]

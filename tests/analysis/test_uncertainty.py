@@ -18,6 +18,7 @@ from logger.analysis.uncertainty import (
     Component,
     coverage_factor,
     monte_carlo_radius,
+    quantisation_bias_rms_mm,
     radius_budget,
     reading_components,
     resolution_component,
@@ -25,20 +26,26 @@ from logger.analysis.uncertainty import (
     seatings_needed,
 )
 from logger.analysis import geometry
+from tests.helpers.quantisation import bias_rms_direct
+
+
+# The rig's other sources switched off, so these checks see the inputs they are about alone
+# (systematic_components has its own tests below).
+NO_RIG = {"flat_flatness": 0, "indicator_error": 0, "probe_offset": 0, "caliper_common": 0}
 
 
 def _three_ball(u_leg=0.012, u_ball=0.002):
     return parse_profile({"unit": "mm", "spherometer": {"kind": "three-ball", "leg_spacings": [70.02, 69.98, 70.01],
                                                         "ball_diameter": 6.35},
                           "indicator": {"resolution": 0.001},
-                          "uncertainty": {"leg_spacing": u_leg, "ball_diameter": u_ball}}, "test").spherometer
+                          "uncertainty": {"leg_spacing": u_leg, "ball_diameter": u_ball, **NO_RIG}}, "test").spherometer
 
 
 def _ring(u_edge=0.02, u_diam=0.0):
     return parse_profile({"unit": "mm", "spherometer": {"kind": "ring", "inner_diameter": 70.0,
                                                         "outer_diameter": 76.0, "edge_radius": 0.5},
                           "indicator": {"resolution": 0.001},
-                          "uncertainty": {"edge_radius": u_edge, "ring_diameter": u_diam}}, "test").spherometer
+                          "uncertainty": {"edge_radius": u_edge, "ring_diameter": u_diam, **NO_RIG}}, "test").spherometer
 
 
 @settings(max_examples=100, deadline=None)
@@ -104,14 +111,49 @@ def test_component_rules():
             Component("bad", **bad)
 
 
-def test_reading_components_keep_resolution_only_below_one_count():
-    # Source: the rule in docs/measurement.md (common practice; dithering, Widrow and Kollar, Quantization
-    # Noise, 2008, from memory): averaging beats the step only when the scatter is at
-    # least about one count.
+@pytest.mark.parametrize("sigma", [0.0, 0.02, 0.05, 0.1, 0.2, 0.3, 0.4, 0.5, 0.7])
+def test_quantisation_bias_against_the_direct_expectation(sigma):
+    # Source: the expected count of a Gaussian input, summed bin by bin from scipy.stats.norm
+    # (tests/helpers/quantisation.py), against the Widrow-Kollar series in the code.
+    q = 0.001
+    want = bias_rms_direct(q, sigma * q)
+    assert quantisation_bias_rms_mm(q, sigma * q) == pytest.approx(want, rel=1e-3, abs=1e-9 * q)
+
+
+def test_quantisation_bias_against_simulated_quantised_means():
+    # Source: a direct numpy simulation: at 64 offsets over a step, the mean of 40000 rounded noisy
+    # readings minus the offset; RMS over the offsets.  The figures the issue quotes from the series
+    # (q / sqrt(12) with no noise, about 0.04 q at 0.3 q) come out of the simulation too.
+    rng = np.random.default_rng(5)
+    q = 1.0
+    for sigma, tol in ((0.0, 0.01), (0.15, 0.01), (0.3, 0.005)):
+        x = (np.arange(64) + 0.5) / 64
+        reads = np.round((x[:, None] + rng.normal(0, sigma, (64, 40000))) / q) * q
+        sim = float(np.sqrt(np.mean((reads.mean(axis=1) - x) ** 2)))
+        assert abs(quantisation_bias_rms_mm(q, sigma) - sim) < tol, sigma
+    assert quantisation_bias_rms_mm(q, 0.0) == pytest.approx(1 / math.sqrt(12), rel=1e-12)  # GUM F.2.2.1
+    assert quantisation_bias_rms_mm(q, 0.3) == pytest.approx(0.04, abs=0.003)
+
+
+@settings(max_examples=200, deadline=None)
+@given(s1=st.floats(0.0, 3.0), ds=st.floats(0.0, 0.05), w=st.floats(0.0, 1.0))
+def test_step_term_has_no_jump_and_falls_as_the_scatter_grows(s1, ds, w):
+    # Property of the series: each amplitude falls with sigma, and |d RMS / d sigma| < 1.5 (it peaks
+    # near 1 at small sigma); the dither sqrt(s^2 - q^2/12 + w'^2) moves by at most
+    # sqrt((s + ds)^2 - s^2) (a square root is 1/2-Hoelder), so the term has no jump and never grows.
+    q = 0.001
+    def u(s):
+        return {c.name: c.u for c in reading_components(q, s * q, 8, within_sd_mm=w * q)}["resolution, surface reading"]
+    assert u(s1 + ds) <= u(s1) + 1e-15
+    assert u(s1) - u(s1 + ds) <= 1.5 * q * math.sqrt(ds * (2 * s1 + ds)) * (1 + 1e-9) + 1e-15
+    assert u(s1) <= q / math.sqrt(12) * (1 + 1e-12)
+
+
+def test_reading_components_hold_scatter_and_two_step_terms():
     names = lambda comps: [c.name for c in comps]  # noqa: E731
-    assert len(reading_components(0.001)) == 2
-    assert len(reading_components(0.001, 0.0005, 5)) == 3
-    assert names(reading_components(0.001, 0.002, 5)) == ["seating scatter"]
+    assert names(reading_components(0.001)) == ["resolution, surface reading", "resolution, zero reading"]
+    assert all(c.u == pytest.approx(0.001 / math.sqrt(12)) for c in reading_components(0.001))
+    assert names(reading_components(0.001, 0.002, 5))[0] == "seating scatter"
 
 
 def test_budget_as_dict_is_json_safe_and_table_converts_units():
@@ -205,6 +247,8 @@ def test_seatings_needed_hand_worked():
     # n >= 9.999^2 / 16 = 6.249 -> 7.
     assert seatings_needed(5.0, 0.002, 0.4, 40.0, 3.0) == 7
     assert seatings_needed(5.0, 0.002, 0.4, 40.0, 5.0) is None
+    # the zero seated as often with the same scatter doubles the Type A variance: n >= 12.497 -> 13
+    assert seatings_needed(5.0, 0.002, 0.4, 40.0, 3.0, zero_factor=1.0) == 13
     assert seatings_needed(5.0, 0.0, 0.4, 40.0) == 1
     with pytest.raises(UserError):
         seatings_needed(0.0, 0.002, 0.4, 40.0)
@@ -232,7 +276,7 @@ def test_legs_from_readings_share_the_ball_error_and_monte_carlo_agrees():
     def prof(sph):
         return parse_profile({"unit": "mm", "spherometer": {"kind": "three-ball", "ball_diameter": 6.35, **sph},
                               "indicator": {"resolution": 0.001},
-                              "uncertainty": {"leg_spacing": 0.01, "ball_diameter": 0.01}}, "t")
+                              "uncertainty": {"leg_spacing": 0.01, "ball_diameter": 0.01, **NO_RIG}}, "t")
 
     reads = prof({"leg_readings": [76.37, 76.33, 76.36], "readings": "outside"}).spherometer
     centres = prof({"leg_spacings": [70.02, 69.98, 70.01]}).spherometer
@@ -277,3 +321,52 @@ def test_monte_carlo_where_the_legs_dominate(surface):
     code_mc = monte_carlo_radius(sph, surface, s, comps, n=400_000, seed=13)
     assert float(np.std(code_mc, ddof=1)) == pytest.approx(float(np.std(ref, ddof=1)), rel=0.01)
     assert float(np.mean(code_mc)) == pytest.approx(float(np.mean(ref)), abs=0.02 * b.u_c)
+
+
+def test_caliper_error_common_to_the_legs_is_correlated_in_budget_and_monte_carlo():
+    # GUM 5.2: legs sharing one caliper error u_0 are correlated with r = u_0^2 / (u_0^2 + u_leg^2).
+    # Rebuilt here with eq. 16, u_c^2 = sum_ij c_i c_j u_i u_j r_ij over the legs (sensitivities by
+    # sympy on the textbook circumradius, Heron), and with a Monte Carlo written here that draws one
+    # shared error for the three legs (JCGM 101 6.4.7); the code's budget and Monte Carlo must agree.
+    u_leg, u0 = 0.01, 0.008
+    sph = parse_profile({"unit": "mm", "spherometer": {"kind": "three-ball", "leg_spacings": [70.02, 69.98, 70.01],
+                                                       "ball_diameter": 6.35}, "indicator": {"resolution": 0.001},
+                         "uncertainty": {"leg_spacing": u_leg, "ball_diameter": 0, **NO_RIG, "caliper_common": u0}},
+                        "t").spherometer
+    s = 0.34
+    b = radius_budget(sph, "concave", s, [])
+    a_, b_, c_, s_ = sympy.symbols("a b c s", positive=True)
+    r2 = (a_ * b_ * c_) ** 2 / ((a_ + b_ + c_) * (-a_ + b_ + c_) * (a_ - b_ + c_) * (a_ + b_ - c_))
+    R = (r2 + s_**2) / (2 * s_)
+    vals = {a_: 70.02, b_: 69.98, c_: 70.01, s_: s}
+    cs = [float(sympy.diff(R, x).subs(vals)) for x in (a_, b_, c_)]
+    ui = math.hypot(u_leg, u0)
+    rho = u0**2 / ui**2
+    u2 = sum(ci * cj * ui * ui * (1.0 if i == j else rho) for i, ci in enumerate(cs) for j, cj in enumerate(cs))
+    assert b.u_c == pytest.approx(math.sqrt(u2), rel=1e-5)
+    # independence would be wrong by a wide margin here (the legs' sensitivities share a sign)
+    assert math.sqrt(sum((ci * ui) ** 2 for ci in cs)) < 0.8 * b.u_c
+    draws = monte_carlo_radius(sph, "concave", s, [], n=200_000, seed=2)
+    rng = np.random.default_rng(8)
+    common = rng.normal(0, u0, 200_000)
+    a, bb, c = (rng.normal(x, u_leg, 200_000) + common for x in (70.02, 69.98, 70.01))
+    r = a * bb * c / np.sqrt((a + bb + c) * (-a + bb + c) * (a - bb + c) * (a + bb - c))
+    ind = (r**2 + s**2) / (2 * s) + 6.35 / 2
+    assert float(np.std(draws)) == pytest.approx(float(np.std(ind)), rel=0.02)
+    assert float(np.std(draws)) == pytest.approx(b.u_c, rel=0.02)
+
+
+def test_flat_and_indicator_bounds_enter_as_rectangles_on_the_sagitta():
+    # GUM 4.3.7: a bound +-a read as a rectangle has u = a / sqrt(3); both shift the sagitta,
+    # sensitivity dR/ds (textbook: R = (r^2 + s^2) / (2 s) + rho).
+    sph = parse_profile({"unit": "mm", "spherometer": {"kind": "three-ball", "leg_spacings": [70.02, 69.98, 70.01],
+                                                       "ball_diameter": 6.35}, "indicator": {"resolution": 0.001},
+                         "uncertainty": {"leg_spacing": 0, "ball_diameter": 0, **NO_RIG,
+                                         "flat_flatness": 0.001, "indicator_error": 0.002}}, "t").spherometer
+    s = 0.34
+    r = geometry.circumradius_mm(70.02, 69.98, 70.01)
+    dRds = (s * s - r * r) / (2 * s * s)
+    b = radius_budget(sph, "concave", s, [])
+    assert b.u_c == pytest.approx(abs(dRds) * math.hypot(0.001, 0.002) / math.sqrt(3), rel=1e-9)
+    draws = monte_carlo_radius(sph, "concave", s, [], n=200_000, seed=4)
+    assert float(np.std(draws)) == pytest.approx(b.u_c, rel=0.02)

@@ -18,6 +18,7 @@ from scipy.optimize import brentq
 
 from tests.helpers.exact_construction import three_ball_reading
 from tests.helpers.paths import user_error
+from logger.config.profile import DEFAULT_SYSTEMATIC_MM
 from logger.cli.main import main
 from logger.config.profile import load_profile
 
@@ -131,7 +132,13 @@ def test_radius_inches_and_zero_u():
     vals = {o: 3.0, e: 0.010, s_: 0.01}
     d = {x: float(sympy.diff(R, x).subs(vals)) for x in (o, e, s_)}
     q = 0.00005
-    u_c = math.sqrt((d[s_] ** 2) * (0.00002**2 + 2 * q * q / 12) + (d[o] * 0.0004) ** 2 + (d[e] * 0.002) ** 2)
+    # the rig's other sources at the profile defaults (no caliper legs on a ring): flat and indicator
+    # bounds on s, the probe offset's R e^2 / r^2 on R, rectangles (GUM 4.3.7)
+    rig = {k: v / 25.4 for k, v in DEFAULT_SYSTEMATIC_MM.items()}
+    R0, r0 = float(R.subs(vals)), 3.0 / 2 - 0.010
+    rig2 = ((d[s_] * rig["flat_flatness"]) ** 2 + (d[s_] * rig["indicator_error"]) ** 2
+            + (R0 * rig["probe_offset"] ** 2 / r0**2) ** 2) / 3
+    u_c = math.sqrt((d[s_] ** 2) * (0.00002**2 + 2 * q * q / 12) + (d[o] * 0.0004) ** 2 + (d[e] * 0.002) ** 2 + rig2)
     assert out["radius"] == pytest.approx(float(R.subs(vals)), rel=1e-12)
     assert out["radius_u"] == pytest.approx(u_c, rel=1e-6)
     assert out["radius_U"] == pytest.approx(stats.norm.ppf(0.5 + 0.9545 / 2) * u_c, rel=1e-6)
@@ -140,16 +147,17 @@ def test_radius_inches_and_zero_u():
 
 def test_plan_human_and_seatings():
     res = run("plan", "--profile", EXAMPLE, "--diameter", "200", "--focal-length", "1200",
-              "--scatter", "0.002", "--radius-u", "3")
+              "--scatter", "0.002", "--radius-u", "6")
     assert res.exit_code == 0, res.stderr
     assert "seatings needed" in res.stdout and "convex tool" in res.stdout
     out = ok_json("plan", "--profile", EXAMPLE, "--diameter", "200", "--focal-ratio", "6",
-                  "--scatter", "0.002", "--radius-u", "3")
+                  "--scatter", "0.002", "--radius-u", "6")
     n = out["seatings_needed"]
-    # Source: definition (GUM eq. 10): n seatings reach the target, n - 1 do not.
-    per = out["radius_per_count"] / 0.001 * 0.002  # |dR/ds| * scatter, linearised as in the plan
-    assert math.hypot(per / math.sqrt(n), out["radius_u_without_scatter"]) <= 3.0
-    assert math.hypot(per / math.sqrt(n - 1), out["radius_u_without_scatter"]) > 3.0
+    # Source: definition (GUM eq. 10): n seatings reach the target, n - 1 do not; the zero is the mean
+    # of as many flat seatings with the same scatter, so its Type A term doubles the variance (GUM 4.2.3).
+    per = out["radius_per_count"] / 0.001 * 0.002 * math.sqrt(2)  # |dR/ds| * scatter, linearised as in the plan
+    assert math.hypot(per / math.sqrt(n), out["radius_u_without_scatter"]) <= 6.0
+    assert math.hypot(per / math.sqrt(n - 1), out["radius_u_without_scatter"]) > 6.0
     unreachable = ok_json("plan", "--profile", EXAMPLE, "--diameter", "200", "--focal-ratio", "6",
                           "--scatter", "0.002", "--radius-u", "0.2")
     assert unreachable["seatings_needed"] is None

@@ -93,3 +93,15 @@ def ring_reading(inner_d: float, outer_d: float, e: float, R: float, surface: st
         surface_z(outer_c),
     )
     return abs(H)
+
+
+def reading_off_axis(R: float, r: float, rho: float, e: float) -> float:
+    """Concave sphere R, balls of radius rho with centres a distance r from the axis, the probe e off it.
+
+    Vertex at the origin, the sphere's centre at (0, 0, R): the ball centres lie on the sphere of
+    radius R - rho, at height R - sqrt((R - rho)^2 - r^2); their bottoms rho lower are where the tip
+    stood on the flat.  The tip now touches the sphere at height R - sqrt(R^2 - e^2).
+    """
+    centres = R - math.sqrt((R - rho) ** 2 - r * r)
+    tip = R - math.sqrt(R * R - e * e)
+    return (centres - rho) - tip

@@ -42,6 +42,8 @@ function showResult(s, unit) {
     : "radius still to go to " + length(target, unit, 1) + " " + unit);
   setText("togo-radius", s.radius_to_go_mm == null ? "\u2013" : signed(s.radius_to_go_mm, unit, 1) + " " + unit);
   setText("togo-sagitta", s.sagitta_to_go_mm == null ? "\u2013" : signed(s.sagitta_to_go_mm, unit, 4) + " " + unit);
+  setText("togo-depth", s.depth_to_go_mm == null ? "\u2013" : signed(s.depth_to_go_mm, unit, 4) + " \u00b1 "
+    + length(s.depth_to_go_U_mm, unit, 4) + " " + unit);
 }
 
 function show(s) {
