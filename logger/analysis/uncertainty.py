@@ -386,11 +386,15 @@ def coverage_interval_U(budget: Budget, spherometer, surface: str, sagitta_mm: f
     and k = 2 overstates U (a rectangle's 95 % half-width is 1.65 u); the
     probabilistically symmetric coverage interval of the Monte Carlo then
     gives U as half its width (JCGM 101:2008 7.7), drawn with a fixed seed so
-    that a replay repeats it exactly.  Otherwise the GUM's k u_c.
+    that a replay repeats it exactly.  Otherwise, or when draws fall where the
+    relation has no sphere (a sagitta not clear of its own scatter), the GUM's k u_c.
     """
     rect = math.fsum(c.contribution**2 for c in budget.components if c.distribution == "rectangular")
     if budget.u_c == 0 or rect <= 0.5 * budget.u_c**2:
         return budget.U, "GUM k u_c"
-    draws = monte_carlo_radius(spherometer, surface, sagitta_mm, sagitta_components, n=MC_TRIALS, seed=0)
+    try:
+        draws = monte_carlo_radius(spherometer, surface, sagitta_mm, sagitta_components, n=MC_TRIALS, seed=0)
+    except UserError:  # draws beyond any sphere (a sagitta barely above its own scatter): no interval to take
+        return budget.U, "GUM k u_c"
     lo, hi = np.quantile(draws, [(1 - budget.p) / 2, (1 + budget.p) / 2])
     return float(hi - lo) / 2.0, "Monte Carlo coverage interval (JCGM 101)"

@@ -370,3 +370,13 @@ def test_flat_and_indicator_bounds_enter_as_rectangles_on_the_sagitta():
     assert b.u_c == pytest.approx(abs(dRds) * math.hypot(0.001, 0.002) / math.sqrt(3), rel=1e-9)
     draws = monte_carlo_radius(sph, "concave", s, [], n=200_000, seed=4)
     assert float(np.std(draws)) == pytest.approx(b.u_c, rel=0.02)
+
+
+def test_coverage_interval_falls_back_when_draws_leave_every_sphere():
+    # A sagitta of 0.002 mm with a 0.003 mm rectangular term: many draws are <= 0 and give no radius
+    # (R = (r^2 + s^2) / (2 s) needs s > 0); the GUM's k u_c stands rather than an error.
+    from logger.analysis.uncertainty import coverage_interval_U
+    sph = _three_ball(0.0, 0.0)
+    comps = [Component("step", 0.003, distribution="rectangular")]
+    b = radius_budget(sph, "concave", 0.002, comps)
+    assert coverage_interval_U(b, sph, "concave", 0.002, comps) == (b.U, "GUM k u_c")
