@@ -314,6 +314,13 @@ def shipped_profiles() -> list[str]:
     return sorted(p.stem for p in PROFILE_DIR.glob("*.toml"))
 
 
+def profile_words(path: str | Path) -> str:
+    """How to name a profile to the user: a shipped one by its name (its path lies inside the package,
+    which means nothing on another install), any other by its path."""
+    p = Path(path)
+    return p.stem if p.parent.resolve() == PROFILE_DIR.resolve() and p.suffix == ".toml" else str(p)
+
+
 def resolve_profile(ref: str | Path) -> Path:
     """A path to a TOML file, or the name of a shipped profile; a path wins when both exist."""
     p = Path(ref)

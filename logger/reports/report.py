@@ -19,6 +19,7 @@ seating markers are never thinned.
 from __future__ import annotations
 
 import math
+import textwrap
 from pathlib import Path
 
 import numpy as np
@@ -27,7 +28,7 @@ import pandas as pd
 from logger.reports import plotstyle as ps
 from logger.reports.envelope import TraceEnvelope
 from logger.checks import is_number
-from logger.config.profile import Spherometer
+from logger.config.profile import Spherometer, profile_words
 from logger.run.columns import REPORT_PICTURE, REPORT_TEXT
 from logger.run.load import Run, load_run
 from logger.units import from_mm
@@ -82,7 +83,7 @@ def _settings_text(settings: dict) -> str:
     """settings.json in words: the version, the profile and its unit, the rejection method and its parameter."""
     parts = [f"saglog {settings['saglog_version']}"] if settings.get("saglog_version") else []
     if settings.get("profile"):
-        parts.append(f"profile {settings['profile']}" + (f" (in {settings['profile_unit']})"
+        parts.append(f"profile {profile_words(settings['profile'])}" + (f" (in {settings['profile_unit']})"
                                                           if settings.get("profile_unit") else ""))
     analysis = settings.get("analysis") or {}
     if analysis.get("rejection"):
@@ -216,11 +217,16 @@ class _Seatings:
         self.is_flat = (st["phase"] == "flat").to_numpy()
 
 
+HEADER_COLUMNS = 150  # monospace characters that fit across the figure at the header's size
+
+
 def _draw_header(head, lines: list[str]) -> None:
+    """The title, then the facts wrapped to the figure's width (a long path must not run off the picture)."""
     head.axis("off")
     head.text(0, 1, lines[0], va="top", ha="left", fontsize=12, fontweight="bold", transform=head.transAxes)
-    head.text(0, 0.72, "\n".join(lines[1:]), va="top", ha="left", fontsize=9, family="monospace",
-              transform=head.transAxes, linespacing=1.4)
+    body = [part for line in lines[1:] for part in textwrap.wrap(line, HEADER_COLUMNS, subsequent_indent="  ")]
+    head.text(0, 0.72, "\n".join(body), va="top", ha="left", fontsize=9 if len(body) <= 6 else 8,
+              family="monospace", transform=head.transAxes, linespacing=1.4 if len(body) <= 6 else 1.25)
 
 
 def _draw_trace(trace, s: dict, points, seat: _Seatings, tt: np.ndarray, z, unit: str) -> None:
