@@ -28,6 +28,7 @@ from logger.formats.recording import _unescape_bytes
 
 _MAX_TIME = 16  # bytes of a time field decoded here; longer ones go the careful way
 _ZERO, _NINE, _DOT = 48, 57, 46
+_MIX = np.uint64(0x9E3779B97F4A7C15)  # an odd 64-bit multiplier (2**64 over the golden ratio) to mix words
 _PRINTABLE = bytes(range(0x20, 0x7F)) + b"\t\n"  # what a record may hold besides its TAB and LF
 
 
@@ -68,12 +69,13 @@ def decode_block(data: bytes, parse: Callable[[bytes], tuple]) -> DecodedBlock |
     times = _times(arr, starts, tabs - starts)
     if times is None:
         return None
-    parts = data.replace(b"\t", b"\n").split(b"\n")  # time, field, time, field, ..., b""
-    fields = parts[1:-1:2]
-    index: dict[bytes, int] = {}
-    codes = np.fromiter((index.setdefault(f, len(index)) for f in fields), np.int64, len(fields))
+    distinct = _distinct(arr, tabs + 1, ends - tabs - 1)
+    if distinct is None:
+        return None
+    codes, firsts = distinct
     texts, values = [], []
-    for field in index:
+    for i in firsts.tolist():
+        field = data[tabs[i] + 1:ends[i]]
         raw = _unescape_bytes(field)
         if raw is None:
             return None  # a malformed escape: the incremental reader reports it at its line
@@ -85,6 +87,41 @@ def decode_block(data: bytes, parse: Callable[[bytes], tuple]) -> DecodedBlock |
     return DecodedBlock(t_s, arr, starts, tabs - starts, reused, codes, texts, values)
 
 
+def padded_rows(arr: np.ndarray, at: np.ndarray, length: np.ndarray, width: int) -> np.ndarray:
+    """The bytes arr[at[i]:at[i] + length[i]] of every row i, zero-padded to `width` columns (no NUL is printable)."""
+    tail = np.zeros(width, np.uint8)
+    windows = np.lib.stride_tricks.sliding_window_view(np.concatenate((arr, tail)), width)
+    rows = windows[at]
+    rows[np.arange(width) >= length[:, None]] = 0
+    return rows
+
+
+def _distinct(arr: np.ndarray, at: np.ndarray, length: np.ndarray) -> tuple[np.ndarray, np.ndarray] | None:
+    """Which distinct byte string each row is (codes) and the first row of each; None in the rare doubt.
+
+    The strings are zero-padded to whole 8-byte words and hashed to one
+    word each; rows are grouped by hash (a hash table for the few distinct
+    values, a binary search for each row), then every row is compared with
+    its group's first row, so two rows share a code exactly when their
+    bytes are equal.  Two different strings with one hash (never seen; a
+    block has a few hundred distinct lines) give None: the caller then
+    decodes that block line by line.
+    """
+    width = max(8, -(-int(length.max()) // 8) * 8)
+    words = padded_rows(arr, at, length, width).view(np.uint64)
+    key = words[:, 0].copy()
+    for col in words.T[1:]:
+        key *= _MIX
+        key ^= col
+    kinds = np.unique(key)
+    codes = np.searchsorted(kinds, key)
+    firsts = np.full(len(kinds), len(key), np.int64)
+    np.minimum.at(firsts, codes, np.arange(len(key)))
+    if not np.array_equal(words, words[firsts[codes]]):
+        return None
+    return codes, firsts
+
+
 def _times(arr: np.ndarray, starts: np.ndarray, length: np.ndarray):
     """(t_s, reused) when every time is digits with at most one dot, else None; by groups of equal length."""
     t_s = np.zeros(len(starts))
@@ -93,7 +130,7 @@ def _times(arr: np.ndarray, starts: np.ndarray, length: np.ndarray):
         if width > _MAX_TIME:
             return None
         rows = np.flatnonzero(length == width)
-        text = arr[starts[rows, None] + np.arange(width)]
+        text = padded_rows(arr, starts[rows], length[rows], width)
         digit = (text >= _ZERO) & (text <= _NINE)
         dots = width - digit.sum(axis=1)
         if np.any(dots > 1) or np.any((text != _DOT) & ~digit) or width == 1 and np.any(dots):

@@ -14,7 +14,7 @@ import numpy as np
 from hypothesis import example, given, settings, strategies as st
 from scipy import stats
 
-from logger.analysis.seating import DetectorSettings, SeatingDetector, robust_centre
+from logger.analysis.seating import DetectorSettings, SeatingDetector, _average, _median, robust_centre
 
 STEP = 0.001
 
@@ -163,3 +163,14 @@ def test_a_few_repeated_lines_do_not_turn_an_on_change_stream_continuous():
             found.append(s)
         t += 1.0
     assert len(found) == 5
+
+
+@given(st.lists(st.floats(-1e3, 1e3, allow_nan=False), min_size=1, max_size=60),
+       st.lists(st.floats(0.01, 10.0), min_size=60, max_size=60))
+def test_the_centre_arithmetic_is_numpys(values, weights):
+    # robust_centre computes the median and the weighted mean in its own few operations (speed);
+    # they must be bit for bit numpy.median and numpy.average (the reference library), so that the
+    # seating values stay those numpy gives.
+    v, w = np.array(values), np.array(weights[:len(values)])
+    assert _median(np.sort(v)) == np.median(v)
+    assert _average(v, w) == np.average(v, weights=w)
