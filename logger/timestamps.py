@@ -8,6 +8,10 @@ from datetime import datetime, timezone
 
 import numpy as np
 
+from logger.arrays import unique_inverse
+
+_THREE_DIGITS = np.frombuffer(b"".join(b"%03d" % k for k in range(1000)), np.uint8).reshape(1000, 3)
+
 
 class IsoClock:
     """`YYYY-MM-DDTHH:MM:SS.ffffffZ` for epoch seconds, fast: the date and time of day are cached per second.
@@ -39,13 +43,12 @@ class IsoClock:
         """
         sec = np.floor(epoch_s)
         micros = np.minimum(((epoch_s - sec) * 1e6 + 0.5).astype(np.int64), 999999)
-        secs, where = np.unique(sec.astype(np.int64), return_inverse=True)
+        secs, where = unique_inverse(sec.astype(np.int64))
         table = np.frombuffer("".join(second_text(s) + "." for s in secs.tolist()).encode("ascii"), np.uint8)
         out = np.empty((len(epoch_s), 27), np.uint8)
         out[:, :20] = table.reshape(-1, 20)[where]
-        for k in range(25, 19, -1):
-            out[:, k] = 48 + micros % 10
-            micros //= 10
+        out[:, 20:23] = _THREE_DIGITS[micros // 1000]
+        out[:, 23:26] = _THREE_DIGITS[micros % 1000]
         out[:, 26] = ord("Z")
         return out
 

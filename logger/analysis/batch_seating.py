@@ -38,10 +38,11 @@ def detect_block(det: SeatingDetector, t_s: np.ndarray, v_mm: np.ndarray,
             j = _resting(det, t_s, v_mm, i)
             states[i:j] = _CODE[det.state]
             _repeats(det, t_s, v_mm, i, j)
-        elif det._t and det._ct:
-            j = _holding(det, tl, vl, i, states)
-            if j == i:
-                j = _moving(det, tl, vl, i, states)
+        elif det._t:
+            j = _unsettled(det, tl, vl, i, states)
+            if j > i:  # nothing decided yet
+                i = j
+                continue
         else:
             j = i
         if j < n:  # a reading that may decide: the detector itself
@@ -94,84 +95,58 @@ def _extend(det: SeatingDetector, ts: list, vs: list) -> None:
             det._compact()
 
 
-def _holding(det: SeatingDetector, tl: list, vl: list, i: int, states: np.ndarray) -> int:
-    """Readings from i that hold within the band of the mean since the anchor, on a stream that repeats values.
+def _unsettled(det: SeatingDetector, tl: list, vl: list, i: int, states: np.ndarray) -> int:
+    """Readings from i while the instrument is neither seated nor resting: holds that grow, moves that restart them.
 
-    Taken here up to (not including) the first one that leaves the band,
-    reaches the settle time, would reset or fire the rough-rest watch, or
-    comes more than REPEAT_MEMORY_S after the last repeat: the detector
-    decides those.  The same sums and comparisons as `SeatingDetector.feed`.
+    Taken here up to (not including) the first reading that decides
+    something: one that would complete a hold (the settle time reached, or
+    the hold about to be compacted), fire the rough-rest watch, or come more
+    than REPEAT_MEMORY_S after the last repeat (where `advance` acts); the
+    detector decides those.  The same sums, comparisons and lists as
+    `SeatingDetector.feed` with its `_restart` and `_coarse`.
     """
-    band = det._band
-    d = vl[i] - det._sum / len(det._v)
-    if d < -band or d > band:
-        return i  # it moved
-    half_lift, lift, sign, settle_s = det._lift / 2, det._lift, det.sign, det.s.settle_s
-    total, count, n_coarse = det._sum, len(det._v), len(det._ct)
-    t0, ct0, cv0 = det._t[0], det._ct[0], det._cv[0]
+    band, half_lift, lift, sign = det._band, det._lift / 2, det._lift, det.sign
+    settle_s, settle3_s = det.s.settle_s, 3 * det.s.settle_s
+    ts, vs, total = det._t, det._v, det._sum
+    count, t0 = len(vs), ts[0]
+    ct, cv = det._ct, det._cv
     most, last_v, last_rep = det._most_out, det._last_v, det._last_repeat_t
     settling, lifted = _CODE[State.SETTLING], _CODE[State.LIFTED]
     codes = []
-    for t, x in zip(tl[i:i + 64], vl[i:i + 64]):  # a hold is tens of readings; a longer one comes back here
+    for t, x in zip(tl[i:i + 256], vl[i:i + 256]):  # a longer stretch comes back here
         rep = t if x == last_v else last_rep
+        if t - rep > REPEAT_MEMORY_S:
+            break
         d = x - total / count
-        if (d < -band or d > band or t - t0 >= settle_s or t - rep > REPEAT_MEMORY_S or abs(x - cv0) > half_lift
-                or (t - ct0 >= 3 * settle_s and n_coarse + 1 >= 3)):
+        held = -band <= d <= band
+        if held and (t - t0 >= settle_s or count >= _COMPACT_AT):
+            break
+        rough = bool(ct) and abs(x - cv[0]) <= half_lift
+        if rough and t - ct[0] >= settle3_s and len(ct) + 1 >= 3:
             break
         last_v, last_rep = x, rep
         oriented = sign * x
         if oriented < most:
             most = oriented
-        total += x
-        count += 1
-        n_coarse += 1
-        codes.append(settling if oriented - most >= lift else lifted)
-    j = i + len(codes)
-    if j > i:
-        states[i:j] = codes
-        ts, vs = tl[i:j], vl[i:j]
-        _extend(det, ts, vs)
-        det._ct.extend(ts)
-        det._cv.extend(vs)
-        det._sum, det._most_out, det.state = total, most, STATES[codes[-1]]
-        det._last_v, det._last_repeat_t, det._last_t = last_v, last_rep, tl[j - 1]
-    return j
-
-
-def _moving(det: SeatingDetector, tl: list, vl: list, i: int, states: np.ndarray) -> int:
-    """Readings from i that each leave the band of the one before (the spindle moving): each a new anchor.
-
-    Up to (not including) one that holds, comes more than REPEAT_MEMORY_S
-    after the last repeat, or fires the rough-rest watch; the same steps as
-    `SeatingDetector.feed` and its `_restart` and `_coarse`.
-    """
-    band, half_lift, settle3_s, sign = det._band, det._lift / 2, 3 * det.s.settle_s, det.sign
-    anchor = det._sum / len(det._v)
-    ct, cv = det._ct, det._cv
-    most, last_v, last_rep = det._most_out, det._last_v, det._last_repeat_t
-    j = i
-    for t, x in zip(tl[i:i + 64], vl[i:i + 64]):
-        rep = t if x == last_v else last_rep
-        d = x - anchor
-        if -band <= d <= band or t - rep > REPEAT_MEMORY_S:
-            break
-        if ct and abs(x - cv[0]) <= half_lift:
-            if t - ct[0] >= settle3_s and len(ct) + 1 >= 3:
-                break
+        if held:  # the hold grows
+            ts.append(t)
+            vs.append(x)
+            total += x
+            count += 1
+            codes.append(settling if oriented - most >= lift else lifted)
+        else:  # it moved: a new anchor
+            ts, vs, total, count, t0 = [t], [x], x, 1, t
+            codes.append(lifted)
+        if rough:
             ct.append(t)
             cv.append(x)
         else:
             ct, cv = [t], [x]
-        oriented = sign * x
-        if oriented < most:
-            most = oriented
-        last_v, last_rep, anchor = x, rep, x
-        j += 1
+    j = i + len(codes)
     if j > i:
-        states[i:j] = _CODE[State.LIFTED]
-        det._t, det._v, det._sum = [tl[j - 1]], [vl[j - 1]], vl[j - 1]
-        det._ct, det._cv = ct, cv
-        det.state, det._resting, det.current_index = State.LIFTED, False, None
+        states[i:j] = codes
+        det._t, det._v, det._sum, det._ct, det._cv = ts, vs, total, ct, cv
+        det.state = STATES[codes[-1]]
         det._most_out, det._last_v, det._last_repeat_t, det._last_t = most, last_v, last_rep, tl[j - 1]
     return j
 

@@ -24,6 +24,7 @@ from typing import Callable
 
 import numpy as np
 
+from logger.arrays import unique_inverse
 from logger.formats.recording import _unescape_bytes
 
 _MAX_TIME = 16  # bytes of a time field decoded here; longer ones go the careful way
@@ -37,10 +38,8 @@ class DecodedBlock:
     """The lines of one block: times, the recording's time text, and which distinct line each one is."""
 
     t_s: np.ndarray  # float64 per line
-    data: np.ndarray  # uint8: the block's bytes
-    starts: np.ndarray  # where each line starts in it (its time)
-    time_len: np.ndarray  # the length of each line's time
-    time_reused: np.ndarray  # bool: time_text is exactly seconds_text(t_s)
+    time_text: np.ndarray  # uint8 per line: its time as recorded, right-aligned, NUL-padded on the left
+    time_reused: np.ndarray  # bool: that text is exactly seconds_text(t_s)
     codes: np.ndarray  # int64 per line: index into the distinct lines
     texts: list[str]  # per distinct line: the escaped text (as in the recording and samples.csv)
     values: list[float | None]  # per distinct line: value_mm, None for a bad line
@@ -66,7 +65,7 @@ def decode_block(data: bytes, parse: Callable[[bytes], tuple]) -> DecodedBlock |
     starts = np.concatenate(([0], ends[:-1] + 1))
     if not (np.all(tabs > starts) and np.all(tabs < ends)):  # one TAB in every line, after a time
         return None
-    times = _times(arr, starts, tabs - starts)
+    times = _times(arr, tabs, tabs - starts)
     if times is None:
         return None
     distinct = _distinct(arr, tabs + 1, ends - tabs - 1)
@@ -81,13 +80,13 @@ def decode_block(data: bytes, parse: Callable[[bytes], tuple]) -> DecodedBlock |
             return None  # a malformed escape: the incremental reader reports it at its line
         texts.append(field.decode("ascii"))
         values.append(parse(raw)[0])
-    t_s, reused = times
+    t_s, reused, time_text = times
     for i in np.flatnonzero(~reused).tolist():  # times written some other way: float(), as the reader does
         t_s[i] = float(data[starts[i]:tabs[i]])
-    return DecodedBlock(t_s, arr, starts, tabs - starts, reused, codes, texts, values)
+    return DecodedBlock(t_s, time_text, reused, codes, texts, values)
 
 
-def padded_rows(arr: np.ndarray, at: np.ndarray, length: np.ndarray, width: int) -> np.ndarray:
+def _padded(arr: np.ndarray, at: np.ndarray, length: np.ndarray, width: int) -> np.ndarray:
     """The bytes arr[at[i]:at[i] + length[i]] of every row i, zero-padded to `width` columns (no NUL is printable)."""
     tail = np.zeros(width, np.uint8)
     windows = np.lib.stride_tricks.sliding_window_view(np.concatenate((arr, tail)), width)
@@ -100,21 +99,19 @@ def _distinct(arr: np.ndarray, at: np.ndarray, length: np.ndarray) -> tuple[np.n
     """Which distinct byte string each row is (codes) and the first row of each; None in the rare doubt.
 
     The strings are zero-padded to whole 8-byte words and hashed to one
-    word each; rows are grouped by hash (a hash table for the few distinct
-    values, a binary search for each row), then every row is compared with
-    its group's first row, so two rows share a code exactly when their
-    bytes are equal.  Two different strings with one hash (never seen; a
+    word each; rows are grouped by hash (one sort of one word a row), then
+    every row is compared with its group's first row, so two rows share a
+    code exactly when their bytes are equal.  Two different strings with one hash (never seen; a
     block has a few hundred distinct lines) give None: the caller then
     decodes that block line by line.
     """
     width = max(8, -(-int(length.max()) // 8) * 8)
-    words = padded_rows(arr, at, length, width).view(np.uint64)
+    words = _padded(arr, at, length, width).view(np.uint64)
     key = words[:, 0].copy()
     for col in words.T[1:]:
         key *= _MIX
         key ^= col
-    kinds = np.unique(key)
-    codes = np.searchsorted(kinds, key)
+    kinds, codes = unique_inverse(key)
     firsts = np.full(len(kinds), len(key), np.int64)
     np.minimum.at(firsts, codes, np.arange(len(key)))
     if not np.array_equal(words, words[firsts[codes]]):
@@ -122,23 +119,33 @@ def _distinct(arr: np.ndarray, at: np.ndarray, length: np.ndarray) -> tuple[np.n
     return codes, firsts
 
 
-def _times(arr: np.ndarray, starts: np.ndarray, length: np.ndarray):
-    """(t_s, reused) when every time is digits with at most one dot, else None; by groups of equal length."""
-    t_s = np.zeros(len(starts))
-    reused = np.zeros(len(starts), bool)
-    for width in np.unique(length).tolist():
-        if width > _MAX_TIME:
-            return None
-        rows = np.flatnonzero(length == width)
-        text = padded_rows(arr, starts[rows], length[rows], width)
-        digit = (text >= _ZERO) & (text <= _NINE)
-        dots = width - digit.sum(axis=1)
-        if np.any(dots > 1) or np.any((text != _DOT) & ~digit) or width == 1 and np.any(dots):
-            return None  # float() would read these some other way (or refuse them)
-        if 8 <= width <= 15:  # 1 to 9 digits, the dot, 6 digits: the recorder's own form
-            ok = (text[:, width - 7] == _DOT) & ((text[:, 0] != _ZERO) | (width == 8))
-            cols = [k for k in range(width) if k != width - 7]
-            m = (text[:, cols].astype(np.int64) - _ZERO) @ (10 ** np.arange(width - 2, -1, -1, dtype=np.int64))
-            t_s[rows] = np.where(ok, m / 1e6, 0.0)
-            reused[rows] = ok
-    return t_s, reused
+def _times(arr: np.ndarray, tabs: np.ndarray, length: np.ndarray):
+    """(t_s, reused, text) when every time is digits with at most one dot, else None.
+
+    `text` holds each time right-aligned against its TAB in a NUL-padded
+    byte matrix, so the recorder's own form (1 to 8 digits, the dot, 6
+    digits) has its dot in one column for every line and its digits read
+    as one integer of microseconds.
+    """
+    width = int(length.max())
+    if width > _MAX_TIME:
+        return None
+    text = np.lib.stride_tricks.sliding_window_view(np.concatenate((np.zeros(width, np.uint8), arr)), width)[tabs]
+    pad = np.arange(width) >= length[:, None]
+    pad = pad[:, ::-1]  # the columns left of each time
+    text[pad] = 0
+    digit = (text - np.uint8(_ZERO)) <= 9
+    dot = text == _DOT
+    dots = np.count_nonzero(dot, axis=1)
+    if (dots > 1).any() or not (digit | dot | pad).all() or ((length == 1) & (dots == 1)).any():
+        return None  # float() would read these some other way (or refuse them)
+    t_s = np.zeros(len(tabs))
+    reused = np.zeros(len(tabs), bool)
+    if width >= 8:
+        lead = text[np.arange(len(tabs)), width - length]  # a time's first byte
+        reused = (dot[:, width - 7] & (length >= 8) & (length <= 15) & ((lead != _ZERO) | (length == 8)))
+        cols = [k for k in range(width) if k != width - 7]
+        digits = np.where(digit, text - np.uint8(_ZERO), 0)[:, cols].astype(np.int64)
+        m = digits @ (10 ** np.arange(width - 2, -1, -1, dtype=np.int64))
+        t_s = np.where(reused, m / 1e6, 0.0)
+    return t_s, reused, text

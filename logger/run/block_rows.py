@@ -14,7 +14,8 @@ from __future__ import annotations
 import numpy as np
 
 from logger.analysis.batch_seating import STATES
-from logger.formats.batch_decode import DecodedBlock, padded_rows
+from logger.arrays import unique_inverse
+from logger.formats.batch_decode import DecodedBlock
 from logger.run.rows import sample_head, sample_tail
 from logger.timestamps import IsoClock
 
@@ -32,7 +33,7 @@ def _tails(block: DecodedBlock, states: np.ndarray, seats: np.ndarray):
     """Each distinct (line, state, seating) formatted once by `sample_tail`: a padded byte table and codes."""
     span = int(seats.max()) + 2
     key = (block.codes * len(STATES) + states) * span + (seats + 1)
-    keys, code = np.unique(key, return_inverse=True)
+    keys, code = unique_inverse(key)
     texts = []
     for k in keys.tolist():
         rest, seat = divmod(k, span)
@@ -43,13 +44,14 @@ def _tails(block: DecodedBlock, states: np.ndarray, seats: np.ndarray):
 
 def _heads(block: DecodedBlock, t_wall: np.ndarray) -> np.ndarray:
     """`time,t_s,` per line, NUL-padded: the ISO time, then the recording's own time text where it is the cell's."""
-    iso = IsoClock.many(t_wall)
-    reused = block.time_reused
-    own = padded_rows(block.data, block.starts, np.where(reused, block.time_len, 0), int(block.time_len.max()))
-    comma = np.full((len(t_wall), 1), ord(","), np.uint8)
-    heads = np.concatenate((iso, comma, own, comma), axis=1)
-    others = np.flatnonzero(~reused)
-    if len(others):  # the rare times the recorder did not write: formatted by sample_head itself
+    n = len(t_wall)
+    own = block.time_text
+    heads = np.empty((n, _ISO + 2 + own.shape[1]), np.uint8)
+    heads[:, :_ISO] = IsoClock.many(t_wall)
+    heads[:, _ISO] = heads[:, -1] = ord(",")
+    heads[:, _ISO + 1:-1] = own
+    others = np.flatnonzero(~block.time_reused)
+    if len(others):  # the times the recorder did not write: formatted by sample_head itself
         table = _table([sample_head("", t)[1:] for t in block.t_s[others].tolist()])
         if table.shape[1] > heads.shape[1] - _ISO - 1:
             heads = np.pad(heads, ((0, 0), (0, table.shape[1] - (heads.shape[1] - _ISO - 1))))

@@ -13,6 +13,7 @@ import numpy as np
 from hypothesis import given, strategies as st
 
 import logger.formats.batch_decode as bd
+from logger.arrays import unique_inverse
 from logger.formats.decode import Decoder
 
 _FIELD = st.text(alphabet=st.characters(min_codepoint=0x20, max_codepoint=0x7E, blacklist_characters="\\"), max_size=30)
@@ -40,3 +41,12 @@ def test_a_hash_collision_refuses_the_block(monkeypatch):
     assert fields[0][-8:] == fields[1][-8:] and fields[0] != fields[1]
     assert bd.decode_block(_block(fields), Decoder("mm").parse) is None
     assert bd.decode_block(_block(fields[:1] * 3), Decoder("mm").parse) is not None
+
+
+@given(st.lists(st.integers(-3, 3), min_size=1, max_size=50))
+def test_unique_inverse_is_numpys(values):
+    # reference: numpy.unique(return_inverse=True), which sorts every element
+    key = np.array(values, np.int64)
+    kinds, inverse = unique_inverse(key)
+    ref_kinds, ref_inverse = np.unique(key, return_inverse=True)
+    assert np.array_equal(kinds, ref_kinds) and np.array_equal(inverse, ref_inverse)
