@@ -33,11 +33,11 @@ def detect_block(det: SeatingDetector, t_s: np.ndarray, v_mm: np.ndarray,
         if det.state == SEATED:
             j = _seated(det, tl, vl, i)
             states[i:j], seats[i:j] = _CODE[SEATED], det.current_index
-            _repeats(det, t_s, v_mm, i, j)
+            _repeats(det, tl, vl, i, j)
         elif det._resting and det._t:
             j = _resting(det, t_s, v_mm, i)
             states[i:j] = _CODE[det.state]
-            _repeats(det, t_s, v_mm, i, j)
+            _repeats(det, tl, vl, i, j)
         elif det._t:
             j = _unsettled(det, tl, vl, i, states)
             if j > i:  # nothing decided yet
@@ -107,12 +107,14 @@ def _unsettled(det: SeatingDetector, tl: list, vl: list, i: int, states: np.ndar
     """
     band, half_lift, lift, sign = det._band, det._lift / 2, det._lift, det.sign
     settle_s, settle3_s = det.s.settle_s, 3 * det.s.settle_s
-    ts, vs, total = det._t, det._v, det._sum
-    count, t0 = len(vs), ts[0]
-    ct, cv = det._ct, det._cv
+    total, count, t0 = det._sum, len(det._v), det._t[0]
+    n_rough = len(det._ct)
+    ct0, cv0 = (det._ct[0], det._cv[0]) if n_rough else (0.0, 0.0)
     most, last_v, last_rep = det._most_out, det._last_v, det._last_repeat_t
     settling, lifted = _CODE[State.SETTLING], _CODE[State.LIFTED]
+    anchor = rough_from = -1  # where the hold and the rough rest last started afresh (-1: before i)
     codes = []
+    k = i
     for t, x in zip(tl[i:i + 256], vl[i:i + 256]):  # a longer stretch comes back here
         rep = t if x == last_v else last_rep
         if t - rep > REPEAT_MEMORY_S:
@@ -121,34 +123,40 @@ def _unsettled(det: SeatingDetector, tl: list, vl: list, i: int, states: np.ndar
         held = -band <= d <= band
         if held and (t - t0 >= settle_s or count >= _COMPACT_AT):
             break
-        rough = bool(ct) and abs(x - cv[0]) <= half_lift
-        if rough and t - ct[0] >= settle3_s and len(ct) + 1 >= 3:
+        rough = n_rough and -half_lift <= x - cv0 <= half_lift
+        if rough and t - ct0 >= settle3_s and n_rough + 1 >= 3:
             break
         last_v, last_rep = x, rep
         oriented = sign * x
         if oriented < most:
             most = oriented
         if held:  # the hold grows
-            ts.append(t)
-            vs.append(x)
             total += x
             count += 1
             codes.append(settling if oriented - most >= lift else lifted)
         else:  # it moved: a new anchor
-            ts, vs, total, count, t0 = [t], [x], x, 1, t
+            anchor, total, count, t0 = k, x, 1, t
             codes.append(lifted)
         if rough:
-            ct.append(t)
-            cv.append(x)
+            n_rough += 1
         else:
-            ct, cv = [t], [x]
-    j = i + len(codes)
-    if j > i:
-        states[i:j] = codes
-        det._t, det._v, det._sum, det._ct, det._cv = ts, vs, total, ct, cv
-        det.state = STATES[codes[-1]]
-        det._most_out, det._last_v, det._last_repeat_t, det._last_t = most, last_v, last_rep, tl[j - 1]
-    return j
+            rough_from, n_rough, ct0, cv0 = k, 1, t, x
+        k += 1
+    if k > i:
+        states[i:k] = codes
+        if anchor < 0:
+            det._t.extend(tl[i:k])
+            det._v.extend(vl[i:k])
+        else:
+            det._t, det._v = tl[anchor:k], vl[anchor:k]
+        if rough_from < 0:
+            det._ct.extend(tl[i:k])
+            det._cv.extend(vl[i:k])
+        else:
+            det._ct, det._cv = tl[rough_from:k], vl[rough_from:k]
+        det._sum, det.state = total, STATES[codes[-1]]
+        det._most_out, det._last_v, det._last_repeat_t, det._last_t = most, last_v, last_rep, tl[k - 1]
+    return k
 
 
 def _resting(det: SeatingDetector, t_s: np.ndarray, v_mm: np.ndarray, i: int) -> int:
@@ -169,12 +177,12 @@ def _resting(det: SeatingDetector, t_s: np.ndarray, v_mm: np.ndarray, i: int) ->
     return j
 
 
-def _repeats(det: SeatingDetector, t_s: np.ndarray, v_mm: np.ndarray, i: int, j: int) -> None:
+def _repeats(det: SeatingDetector, tl: list, vl: list, i: int, j: int) -> None:
     """What every reading i..j-1 does to the detector's memory of repeats and of the last reading."""
     if j <= i:
         return
-    prev = np.concatenate(([det._last_v], v_mm[i:j - 1]))
-    rep = np.flatnonzero(v_mm[i:j] == prev)
-    if len(rep):
-        det._last_repeat_t = float(t_s[i + rep[-1]])
-    det._last_t, det._last_v = float(t_s[j - 1]), float(v_mm[j - 1])
+    for k in range(j - 1, i - 1, -1):  # the last repeat: a held or resting reading repeats often
+        if vl[k] == (vl[k - 1] if k > i else det._last_v):
+            det._last_repeat_t = tl[k]
+            break
+    det._last_t, det._last_v = tl[j - 1], vl[j - 1]

@@ -130,22 +130,31 @@ def _times(arr: np.ndarray, tabs: np.ndarray, length: np.ndarray):
     width = int(length.max())
     if width > _MAX_TIME:
         return None
+    n = len(tabs)
     text = np.lib.stride_tricks.sliding_window_view(np.concatenate((np.zeros(width, np.uint8), arr)), width)[tabs]
-    pad = np.arange(width) >= length[:, None]
-    pad = pad[:, ::-1]  # the columns left of each time
+    pad = np.arange(width - 1, -1, -1) >= length[:, None]  # the columns left of each time
     text[pad] = 0
-    digit = (text - np.uint8(_ZERO)) <= 9
+    value = text - np.uint8(_ZERO)  # a digit's value; anything else wraps round to 10 or more
+    digit = value <= 9
     dot = text == _DOT
-    dots = np.count_nonzero(dot, axis=1)
-    if (dots > 1).any() or not (digit | dot | pad).all() or ((length == 1) & (dots == 1)).any():
+    if not (digit | dot | pad).all():
         return None  # float() would read these some other way (or refuse them)
-    t_s = np.zeros(len(tabs))
-    reused = np.zeros(len(tabs), bool)
+    at_seven = dot[:, width - 7] if width >= 8 else np.zeros(n, bool)  # the recorder's dot
+    if np.count_nonzero(dot) != np.count_nonzero(at_seven):  # dots elsewhere too: one a line at most
+        dots = np.count_nonzero(dot, axis=1)
+        if (dots > 1).any() or ((length == 1) & (dots == 1)).any():
+            return None
+    t_s = np.zeros(n)
+    reused = np.zeros(n, bool)
     if width >= 8:
-        lead = text[np.arange(len(tabs)), width - length]  # a time's first byte
-        reused = (dot[:, width - 7] & (length >= 8) & (length <= 15) & ((lead != _ZERO) | (length == 8)))
-        cols = [k for k in range(width) if k != width - 7]
-        digits = np.where(digit, text - np.uint8(_ZERO), 0)[:, cols].astype(np.int64)
-        m = digits @ (10 ** np.arange(width - 2, -1, -1, dtype=np.int64))
-        t_s = np.where(reused, m / 1e6, 0.0)
+        lead = text[np.arange(n), width - length]  # a time's first byte
+        reused = at_seven & (length >= 8) & (length <= 15) & ((lead != _ZERO) | (length == 8))
+        value[~digit] = 0
+        whole, micros = np.zeros(n, np.uint32), np.zeros(n, np.uint32)
+        for k in range(width):  # Horner's rule over the digits either side of the dot
+            if k != width - 7:
+                part = whole if k < width - 7 else micros
+                part *= 10
+                part += value[:, k]
+        t_s = np.where(reused, (whole * 1e6 + micros) / 1e6, 0.0)  # exact integers of microseconds, then one division
     return t_s, reused, text

@@ -15,6 +15,7 @@ from hypothesis import given, strategies as st
 import logger.formats.batch_decode as bd
 from logger.arrays import unique_inverse
 from logger.formats.decode import Decoder
+from logger.run.rows import seconds_text
 
 _FIELD = st.text(alphabet=st.characters(min_codepoint=0x20, max_codepoint=0x7E, blacklist_characters="\\"), max_size=30)
 
@@ -50,3 +51,29 @@ def test_unique_inverse_is_numpys(values):
     kinds, inverse = unique_inverse(key)
     ref_kinds, ref_inverse = np.unique(key, return_inverse=True)
     assert np.array_equal(kinds, ref_kinds) and np.array_equal(inverse, ref_inverse)
+
+
+_TIME = st.one_of(
+    st.floats(0, 99_999_999, allow_nan=False).map(lambda x: "%.6f" % x),  # the recorder's own form
+    st.text(alphabet="0123456789.", min_size=1, max_size=17),  # anything of digits and dots
+    st.sampled_from(["0.000000", "00.000000", "1.5", "12", ".5", "5.", ".", "0012.000000", "123456789.000000"]),
+)
+
+
+@given(st.lists(_TIME, min_size=1, max_size=40))
+def test_times_are_what_float_reads(times):
+    # reference: Python's float() of the time text, as the line-by-line reader takes it; a time that
+    # is written as seconds_text writes it may be copied into samples.csv as it stands
+    data = b"".join(b"%s\t+0.100 mm\n" % t.encode() for t in times)
+    block = bd.decode_block(data, Decoder("mm").parse)
+    readable = all(t.count(".") <= 1 and t != "." and len(t) <= 16 for t in times)
+    if not readable:
+        assert block is None
+        return
+    assert block is not None
+    assert block.t_s.tolist() == [float(t) for t in times]
+    for t, reused in zip(times, block.time_reused.tolist()):
+        if reused:
+            assert seconds_text(float(t)) == t
+        else:  # only a time beyond 15 characters may be written again when it is the recorder's form
+            assert seconds_text(float(t)) != t or len(t) > 15
