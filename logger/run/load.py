@@ -62,11 +62,13 @@ def _read_table(path: Path, columns: tuple[Column, ...], categories: tuple[str, 
 
     `categories`: text columns that repeat a few values over many rows
     (samples.csv's `raw` and `state`), kept as pandas categoricals of the
-    text: a fraction of the memory.  Times are read as bytes
+    text, parsed straight into categories: a fraction of the memory and
+    time of a column of strings.  Times are read as bytes
     and parsed once, in one numpy conversion when they are written as the
     writer writes them (logger.timestamps).
     """
-    dtype = {c.name: ("float64" if c.kind in ("float", "int") else "S27" if c.kind == "time" else str) for c in columns}
+    dtype = {c.name: ("float64" if c.kind in ("float", "int") else "S27" if c.kind == "time"
+                      else "category" if c.name in categories else str) for c in columns}
     try:
         df = pd.read_csv(path, dtype=dtype, keep_default_na=False, na_values=[""], engine="c")
     except FileNotFoundError:
@@ -81,7 +83,7 @@ def _read_table(path: Path, columns: tuple[Column, ...], categories: tuple[str, 
     for c in columns:
         try:
             col = df[c.name]
-            df[c.name] = _typed(col.astype("category") if c.name in categories else col, c)
+            df[c.name] = _typed(col, c)
         except (ValueError, TypeError) as exc:
             raise UserError(f"{path}: column {c.name}: {' '.join(str(exc).split())}") from None
     return df
