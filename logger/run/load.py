@@ -57,36 +57,82 @@ def _read_json(path: Path) -> dict:
     return data
 
 
-def _read_table(path: Path, columns: tuple[Column, ...], categories: tuple[str, ...] = ()) -> pd.DataFrame:
+def _read_table(path: Path, columns: tuple[Column, ...], categories: tuple[str, ...] = (),
+                lead_time: bool = False) -> pd.DataFrame:
     """Read one CSV of the run folder into a typed DataFrame (all listed columns required).
 
     `categories`: text columns that repeat a few values over many rows
     (samples.csv's `raw` and `state`), kept as pandas categoricals of the
     text, parsed straight into categories: a fraction of the memory and
-    time of a column of strings.  Times are read as bytes
-    and parsed once, in one numpy conversion when they are written as the
-    writer writes them (logger.timestamps).
+    time of a column of strings.  `lead_time`: the first column is a time
+    (samples.csv), taken from the file's bytes in one numpy conversion
+    when every row has it as the writer writes it (`_leading_times`), at a
+    fraction of the cost of a CSV column.
     """
-    dtype = {c.name: ("float64" if c.kind in ("float", "int") else "S27" if c.kind == "time"
-                      else "category" if c.name in categories else str) for c in columns}
+    dtype = {c.name: ("float64" if c.kind in ("float", "int") else "category" if c.name in categories else str)
+             for c in columns}
     try:
-        df = pd.read_csv(path, dtype=dtype, keep_default_na=False, na_values=[""], engine="c")
+        header = pd.read_csv(path, nrows=0, engine="c").columns
+        missing = [c.name for c in columns if c.name not in header]
+        if missing:
+            raise UserError(f"{path}: missing column(s) {', '.join(missing)}")
+        rest = [c.name for c in columns[1:]] if lead_time else None
+        df = pd.read_csv(path, dtype=dtype, usecols=rest, keep_default_na=False, na_values=[""], engine="c")
+        if lead_time:
+            times = _leading_times(path, len(df))
+            if times is None:  # written some other way: the column read as any other
+                times = pd.read_csv(path, dtype=dtype, usecols=[columns[0].name], keep_default_na=False,
+                                    na_values=[""], engine="c")[columns[0].name]
+            df.insert(0, columns[0].name, times)
     except FileNotFoundError:
         raise UserError(f"{path}: missing (not a complete run folder)") from None
     except pd.errors.EmptyDataError:
         raise UserError(f"{path}: empty file (no header line)") from None
     except (OSError, UnicodeDecodeError, ValueError, pd.errors.ParserError) as exc:
         raise UserError(f"{path}: cannot read: {' '.join(str(exc).split())}") from None
-    missing = [c.name for c in columns if c.name not in df.columns]
-    if missing:
-        raise UserError(f"{path}: missing column(s) {', '.join(missing)}")
     for c in columns:
         try:
-            col = df[c.name]
-            df[c.name] = _typed(col, c)
+            df[c.name] = _typed(df[c.name], c)
         except (ValueError, TypeError) as exc:
             raise UserError(f"{path}: column {c.name}: {' '.join(str(exc).split())}") from None
     return df
+
+
+def _leading_times(path: Path, n_rows: int, block_bytes: int = 1 << 22) -> pd.Series | None:
+    """The first cell of every data row as UTC times, straight from the file's bytes, a block at a time.
+
+    Only when every row starts with `YYYY-MM-DDTHH:MM:SS.ffffffZ,` (as the
+    writer writes it) and there are exactly `n_rows` of them (no blank or
+    broken lines that pandas would read otherwise); None else.
+    """
+    out = np.empty(n_rows, "datetime64[us]")
+    k = 0
+    with open(path, "rb") as f:
+        f.readline()  # the header
+        carry = b""
+        while True:
+            block = f.read(block_bytes)
+            data = carry + block
+            cut = len(data) if not block else data.rfind(b"\n") + 1
+            data, carry = data[:cut], data[cut:]
+            if data:
+                arr = np.frombuffer(data, np.uint8)
+                ends = np.flatnonzero(arr == 10)
+                starts = np.concatenate(([0], ends + 1))
+                starts = starts[starts < len(arr)]
+                if k + len(starts) > n_rows:
+                    return None
+                cells = np.lib.stride_tricks.sliding_window_view(np.concatenate((arr, np.zeros(28, np.uint8))), 28)[starts]
+                if not ((cells[:, 10] == ord("T")) & (cells[:, 26] == ord("Z")) & (cells[:, 27] == ord(","))).all():
+                    return None
+                try:
+                    out[k:k + len(starts)] = cells[:, :26].copy().view("S26").ravel().astype("datetime64[us]")
+                except ValueError:
+                    return None
+                k += len(starts)
+            if not block:
+                break
+    return pd.Series(out, copy=False).dt.tz_localize("UTC") if k == n_rows else None
 
 
 def _typed(col: pd.Series, c: Column) -> pd.Series:
@@ -115,19 +161,10 @@ def _unguard(col: pd.Series) -> pd.Series:
 
 
 def _times(col: pd.Series) -> pd.Series:
-    """ISO 8601 UTC times read as bytes: `YYYY-MM-DDTHH:MM:SS.ffffffZ` in one conversion, anything else by pandas."""
-    raw = col.to_numpy()
-    if raw.dtype == np.dtype("S27") and len(raw):
-        grid = raw.view(np.uint8).reshape(len(raw), 27)
-        if np.all(grid[:, 26] == ord("Z")) and np.all(grid[:, 10] == ord("T")):
-            try:
-                stamps = grid[:, :26].copy().view("S26").ravel().astype("datetime64[us]")
-            except ValueError:
-                stamps = None
-            if stamps is not None:
-                return pd.Series(stamps, index=col.index).dt.tz_localize("UTC")
-    text = col.map(lambda b: b.decode("utf-8", "replace") if isinstance(b, bytes) else b)
-    return pd.to_datetime(text, utc=True, format="ISO8601")
+    """ISO 8601 times as UTC datetimes (samples.csv's own column arrives parsed already, `_leading_times`)."""
+    if isinstance(col.dtype, pd.DatetimeTZDtype):
+        return col
+    return pd.to_datetime(col, utc=True, format="ISO8601")
 
 
 # The writer puts an apostrophe before text a spreadsheet would run as a formula
@@ -171,7 +208,8 @@ class Run:
     @property
     def samples(self) -> pd.DataFrame:
         if self._samples is None:
-            self._samples = _read_table(self.path / SAMPLES_FILE, SAMPLES_COLUMNS, categories=("raw", "state"))
+            self._samples = _read_table(self.path / SAMPLES_FILE, SAMPLES_COLUMNS, categories=("raw", "state"),
+                                        lead_time=True)
         return self._samples
 
     @property

@@ -137,3 +137,37 @@ def test_docs_hold_the_column_table_verbatim():
     # The one place the columns are documented is logger.run.load; the notes must carry it unchanged.
     notes = (REPO / "docs" / "reports.md").read_text(encoding="utf-8")
     assert columns_markdown() in notes
+
+
+_ROW_TIMES = st.one_of(
+    st.integers(0, 86_400_000_000).map(
+        lambda us: (pd.Timestamp("2026-05-28T00:00:00Z") + pd.Timedelta(microseconds=us)).strftime(
+            "%Y-%m-%dT%H:%M:%S.%fZ")),  # the writer's own form
+    st.sampled_from(["2026-05-28T10:00:00Z", "2026-05-28 10:00:00.5+00:00", "2026-05-28T10:00:00.123+02:00"]),
+)
+
+
+@settings(max_examples=60, deadline=None)
+@given(times=st.lists(_ROW_TIMES, min_size=1, max_size=30), blank=st.booleans(), final_lf=st.booleans(),
+       block=st.sampled_from([40, 97, 1 << 22]))
+def test_sample_times_are_what_pandas_reads(tmp_path_factory, times, blank, final_lf, block):
+    # reference: pandas.read_csv and pandas.to_datetime(utc=True) of the time column; the loader
+    # takes the writer's own form from the file's bytes and must give the same times, in any block
+    # size, and fall back to pandas for any other form, a blank line or a last line without its LF
+    import logger.run.load as load
+
+    folder = tmp_path_factory.mktemp("times")
+    write_run(folder)
+    lines = [f"{t},{k * 0.01:.6f},\"+0.100 mm\",0.100000,lifted," for k, t in enumerate(times)]
+    if blank:
+        lines.insert(len(lines) // 2, "")
+    body = "\n".join([",".join(SAMPLE_FIELDS), *lines]) + ("\n" if final_lf else "")
+    (folder / "samples.csv").write_text(body)
+    real = load._leading_times
+    load._leading_times = lambda p, n: real(p, n, block)
+    try:
+        got = load_run(folder).samples["time"]
+    finally:
+        load._leading_times = real
+    ref = pd.to_datetime(pd.read_csv(folder / "samples.csv")["time"], utc=True, format="ISO8601")
+    assert got.tolist() == ref.tolist()
