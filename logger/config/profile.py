@@ -159,8 +159,10 @@ class Spherometer:
 
         shown = {k: f"{from_mm(v, unit):g} {unit}" for k, v in self.params_mm.items()}
         legs = [shown.pop(k) for k in ("a", "b", "c") if k in shown]
+        probe = [shown.pop(f"probe_{x}") for x in "abc" if f"probe_{x}" in shown]
         parts = ([f"leg spacings a, b, c {', '.join(legs)}"] if legs else []) + [
-            f"{k.replace('_', ' ')} {v}" for k, v in shown.items()]
+            f"{k.replace('_', ' ')} {v}" for k, v in shown.items()] + (
+            [f"probe to balls A, B, C {', '.join(probe)}"] if probe else [])
         return f"{self.kind} ({'; '.join(parts)})"
 
 

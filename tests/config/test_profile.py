@@ -162,3 +162,4 @@ def test_probe_distances_from_the_centre_of_an_equilateral_rig(tmp_path):
     assert moved.spherometer.probe_offset_mm() == pytest.approx(1.0, rel=1e-12)
     assert moved.spherometer.u_mm["probe_a"] == 0.03
     assert DEFAULT_U_MM["probe_distance"] == on_axis.spherometer.u_mm["probe_b"]
+    assert f"probe to balls A, B, C {R0 - 1:g} mm, {other:g} mm" in moved.spherometer.describe()  # as the report says it
