@@ -78,21 +78,27 @@ def sagitta_of_sphere_mm(radius_mm: float, ring_radius_mm: float) -> float:
     return r * r / (R + math.sqrt((R - r) * (R + r)))
 
 
-def probe_sagitta_mm(radius_mm: float, ring_radius_mm: float, foot_radius_mm: float, surface: str) -> float:
+def probe_sagitta_mm(radius_mm: float, ring_radius_mm: float, foot_radius_mm: float, surface: str,
+                     probe_offset_mm: float = 0.0) -> float:
     """What the indicator reads (relative to the flat) on a sphere of radius R.
 
     Always positive: the magnitude of the probe's travel from the flat zero.
+    A probe e off the axis reads sag(R, e) less (`_on_axis_radius` says why).
     """
     ball_sphere = _ball_sphere_mm(radius_mm, foot_radius_mm, surface)
     if ball_sphere <= 0:
         raise UserError(f"a concave radius of {radius_mm:g} mm is smaller than the foot radius")
-    return sagitta_of_sphere_mm(ball_sphere, ring_radius_mm)
+    s = sagitta_of_sphere_mm(ball_sphere, ring_radius_mm)
+    return s - sagitta_of_sphere_mm(radius_mm, probe_offset_mm) if probe_offset_mm > 0 else s
 
 
-def radius_from_sagitta_mm(sagitta_mm, ring_radius_mm, foot_radius_mm, surface: str):
+def radius_from_sagitta_mm(sagitta_mm, ring_radius_mm, foot_radius_mm, surface: str, probe_offset_mm=0.0):
     """Radius of curvature from the probe's sagitta (exact; s^2 term and feet kept).
 
-    Floats or numpy arrays of samples (for the Monte Carlo check).
+    Floats or numpy arrays of samples (for the Monte Carlo check).  With
+    `probe_offset_mm` e, the probe's known distance from the axis through the
+    circumcentre of the ball centres, the reading is first made the on-axis
+    one (`_on_axis_radius`).
     """
     _check_surface(surface)
     s, r, rho = (np.asarray(v, dtype=float) for v in (sagitta_mm, ring_radius_mm, foot_radius_mm))
@@ -105,13 +111,70 @@ def radius_from_sagitta_mm(sagitta_mm, ring_radius_mm, foot_radius_mm, surface: 
             f"sagitta {_show(sagitta_mm)} mm is at or beyond the ring radius {_show(ring_radius_mm)} mm: "
             "no sphere gives that reading"
         )
-    ball_sphere = (r * r + s * s) / (2.0 * s)
-    R = ball_sphere + rho if surface == "concave" else ball_sphere - rho
+    R = _on_axis_radius(s, r, rho, surface, np.asarray(probe_offset_mm, dtype=float))
     if np.any(R <= 0):
         raise UserError(
             f"sagitta {_show(sagitta_mm)} mm on a convex surface implies a radius no larger than the foot radius"
         )
     return _out(R)
+
+
+def _on_axis_radius(s, r, rho, surface: str, e):
+    """R from a reading s taken with the probe a distance e off the axis (e = 0: on it).
+
+    The three ball centres lie on a sphere of radius R' = R -+ rho about the
+    surface's centre, so the axis through that centre square to their plane
+    passes through their circumcentre; a probe square to that plane but e off
+    the axis meets the surface sag(R, e) = R - sqrt(R^2 - e^2) nearer the
+    balls' plane than the vertex, on a concave and a convex surface alike.
+    Hence the reading is s = sag(R', r) - sag(R, e) exactly (a point tip; a tip
+    ball of radius t makes it sag(R -+ t, e), a change of e^2 t / (2 R^2): a
+    fraction t / R of the correction, left out), and R solves
+    R = R'(s + sag(R, e)) -+ rho.  That is a contraction with factor about
+    e^2 / r^2, so a fixed-point iteration from the uncorrected R converges
+    (to the last digits in a few steps for e under r / 2).
+    """
+    def from_on_axis(s_on_axis):
+        ball_sphere = (r * r + s_on_axis * s_on_axis) / (2.0 * s_on_axis)
+        return ball_sphere + rho if surface == "concave" else ball_sphere - rho
+
+    R = from_on_axis(s)
+    if not np.any(e > 0):
+        return R
+    if np.any(e >= r):
+        raise UserError(f"a probe {_show(e)} mm off the axis is outside the ring of radius {_show(r)} mm")
+    for _ in range(200):
+        if np.any(R < e):
+            raise UserError(f"sagitta {_show(s)} mm with the probe {_show(e)} mm off the axis gives no sphere")
+        R_next = from_on_axis(s + e * e / (R + np.sqrt((R - e) * (R + e))))
+        if np.all(np.abs(R_next - R) <= 1e-15 * np.abs(R_next)):
+            return R_next
+        R = R_next
+    return R
+
+
+def probe_offset_from_distances_mm(legs_mm, distances_mm):
+    """How far the probe sits from the circumcentre of the ball centres, from its distances to them.
+
+    Balls A, B, C with leg spacings a = |BC|, b = |CA|, c = |AB| (a faces
+    ball A); distances d_A, d_B, d_C from the probe's tip to the ball centres,
+    in their plane.  A at the origin, B at (c, 0), C at (x_C, y_C) by the law
+    of cosines; the circumcentre at (c / 2, (b^2 - c x_C) / (2 y_C)).  The
+    probe's position P satisfies |P - X|^2 = d_X^2 for each ball; subtracting
+    the first equation from the other two leaves two linear ones (the radical
+    centre of the three circles), exact for consistent distances and the
+    point of equal power when three measured distances over-determine the two
+    coordinates.  Floats or numpy arrays (the Monte Carlo check).
+    """
+    a, b, c = (np.asarray(v, dtype=float) for v in legs_mm)
+    dA, dB, dC = (np.asarray(v, dtype=float) for v in distances_mm)
+    xC = (b * b + c * c - a * a) / (2.0 * c)
+    yC = np.sqrt(np.maximum(b * b - xC * xC, 0.0))
+    if np.any(yC <= 0):
+        raise UserError(f"leg spacings {_show(a)}, {_show(b)}, {_show(c)} make a degenerate (flat) triangle")
+    x = (dA * dA - dB * dB + c * c) / (2.0 * c)
+    y = (dA * dA - dC * dC + b * b - 2.0 * xC * x) / (2.0 * yC)
+    return _out(np.hypot(x - c / 2.0, y - (b * b - c * xC) / (2.0 * yC)))
 
 
 def _show(value) -> str:
@@ -190,14 +253,16 @@ def ring_radius_sensitivities(reference_radius_mm: float, sagitta_mm: float, foo
             "foot_radius": (-s if surface == "concave" else s) / r}
 
 
-def pair_sagitta_sum_mm(radius_mm, contact_concave_mm, contact_convex_mm):
+def pair_sagitta_sum_mm(radius_mm, contact_concave_mm, contact_convex_mm, probe_offset_mm=0.0):
     """s_cc + s_cv: the probe sagittas of a concave and a convex piece of one radius R.
 
     Each contact is (ring radius, foot radius) for that surface (a ring
     bears on its outer edge on the concave piece, on its inner edge on the
     convex one).  The ball centres lie on spheres of radius R - rho and
     R + rho; each sagitta is written r^2 / (R' + sqrt(R'^2 - r^2)) to avoid
-    cancellation.  Floats or numpy arrays (the Monte Carlo check feeds it samples).
+    cancellation.  A probe a known e off the axis reads each piece sag(R, e)
+    short (`_on_axis_radius`).  Floats or numpy arrays (the Monte Carlo check
+    feeds it samples).
     """
     R = np.asarray(radius_mm, dtype=float)
     total = 0.0
@@ -207,16 +272,21 @@ def pair_sagitta_sum_mm(radius_mm, contact_concave_mm, contact_convex_mm):
             raise UserError(f"a pair of radius {_show(radius_mm)} mm cannot carry the feet over a ring of radius "
                             f"{_show(ring)} mm")
         total = total + r * r / (X + np.sqrt(np.maximum((X - r) * (X + r), 0.0)))
+    if probe_offset_mm > 0:
+        e = probe_offset_mm
+        total = total - 2.0 * e * e / (R + np.sqrt((R - e) * (R + e)))
     return _out(total)
 
 
-def radius_from_pair_mm(sagitta_sum_mm: float, contact_concave_mm, contact_convex_mm) -> float:
+def radius_from_pair_mm(sagitta_sum_mm: float, contact_concave_mm, contact_convex_mm,
+                        probe_offset_mm: float = 0.0) -> float:
     """The one radius R of a concave and a convex piece whose sagittas add up to `sagitta_sum_mm`.
 
     s_cc + s_cv falls monotonically from its largest value, where the
     smallest sphere just carries the feet, towards 0 as R grows, so a
     bracketed root finder (Brent) finds R.  Upper bracket: each sagitta is
-    below r^2 / R', so at R = rho + 2 r_max^2 / sum the total is below the target.
+    below r^2 / R', so at R = rho + 2 r_max^2 / sum the total is below the target
+    (the more so with the probe off the axis, which only takes from it).
     """
     from scipy.optimize import brentq
 
@@ -225,11 +295,12 @@ def radius_from_pair_mm(sagitta_sum_mm: float, contact_concave_mm, contact_conve
     if not (math.isfinite(total) and total > 0):
         raise UserError(f"the pieces' sagittas must add up to a positive number, got {sagitta_sum_mm!r} mm")
     lo = max(r_cc + rho_cc, r_cv - rho_cv, rho_cv)
-    if total >= pair_sagitta_sum_mm(lo, contact_concave_mm, contact_convex_mm):
+    contacts = (contact_concave_mm, contact_convex_mm, probe_offset_mm)
+    if total >= pair_sagitta_sum_mm(lo, *contacts):
         raise UserError(f"sagittas adding up to {total:g} mm are too deep for a ring of radius {r_cc:g} mm: "
                         "no pair of one radius gives them")
     hi = lo + 2.0 * max(r_cc, r_cv) ** 2 / total
-    return float(brentq(lambda R: pair_sagitta_sum_mm(R, contact_concave_mm, contact_convex_mm) - total, lo, hi,
+    return float(brentq(lambda R: pair_sagitta_sum_mm(R, *contacts) - total, lo, hi,
                         xtol=1e-13 * hi, rtol=1e-15, maxiter=200))
 
 

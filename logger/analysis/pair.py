@@ -24,7 +24,8 @@ import numpy as np
 
 from logger.analysis import geometry, outliers
 from logger.analysis.phases import CONCAVE, CONVEX, FLAT
-from logger.analysis.uncertainty import _INPUT_LABELS, Budget, Component, radius_budget, reading_components
+from logger.analysis.uncertainty import (Budget, Component, input_components, radius_budget, reading_components,
+                                         systematic_components)
 from logger.errors import UserError
 
 
@@ -77,22 +78,24 @@ def _sagitta_terms(u_a: float, fit: Fit, step: float, names: tuple[str, str]) ->
 
 
 def _pair_radius(spherometer, total: float, params=None) -> float:
+    """The pair's R from the sum, with these inputs; a probe off the axis by a known e reads each piece
+    sag(R, e) short (geometry._on_axis_radius), so the sum 2 sag(R, e) short."""
+    e = spherometer.probe_offset_mm(params)
     return geometry.radius_from_pair_mm(total, spherometer.contact_mm(CONCAVE, params),
-                                        spherometer.contact_mm(CONVEX, params))
+                                        spherometer.contact_mm(CONVEX, params), 0.0 if e is None else e)
 
 
 def pair_budget(spherometer, total: float, sum_terms: list[Component], abrasive_mm: float) -> Budget:
-    """GUM budget of the pair's radius: the sum's terms times dR/dsum, each spherometer input by a
-    central difference through its contact geometry, and the abrasive (rectangular, half-width g/2)."""
+    """GUM budget of the pair's radius (GUM 5.1.2; 5.2 for the caliper error the legs share): the sum's
+    terms times dR/dsum, each spherometer input by a central difference through its contact geometry,
+    the rig's other sources as for one piece (uncertainty.systematic_components, with pieces = 2), and
+    the abrasive (rectangular, half-width g/2)."""
     R = _pair_radius(spherometer, total)
     slope = geometry.dradius_dpair_sum(R, spherometer.contact_mm(CONCAVE), spherometer.contact_mm(CONVEX))
     comps = [dataclasses.replace(c, sensitivity=c.sensitivity * slope) for c in sum_terms]
-    for name, u in spherometer.u_mm.items():
-        if u > 0:
-            x = spherometer.params_mm[name]
-            h = 1e-6 * max(abs(x), 1.0)
-            Rs = [_pair_radius(spherometer, total, dict(spherometer.params_mm, **{name: x + d})) for d in (h, -h)]
-            comps.append(Component(_INPUT_LABELS.get(name, name), u, (Rs[0] - Rs[1]) / (2 * h)))
+    radius_of = lambda params: _pair_radius(spherometer, total, params)  # noqa: E731
+    comps += input_components(spherometer, radius_of)
+    comps += systematic_components(spherometer, CONCAVE, radius_of, R, slope, pieces=2)
     if abrasive_mm > 0:
         comps.append(Component("abrasive: the pieces' radii differ by up to its grain", abrasive_mm / 2 / math.sqrt(3),
                                distribution="rectangular"))
@@ -162,7 +165,7 @@ def _pieces(decisions, fit: Fit, profile, step: float, sign: int, summary: dict)
         summary.update({f"{piece}_sagitta_mm": s, f"{piece}_radius_mm": budget.value, f"{piece}_radius_U_mm": budget.U})
     if len(own) == 2:
         # measured = true + e on the concave piece, true - e on the convex one (e: the flat's own bulge)
-        expected = {p: geometry.probe_sagitta_mm(R, *profile.contact_mm(p), p) for p in own}
+        expected = {p: profile.spherometer.reading_mm(R, p) for p in own}
         error = ((own[CONCAVE] - expected[CONCAVE]) - (own[CONVEX] - expected[CONVEX])) / 2
         _, u_error = fit.contrast({-2: 0.5, -1: -0.5})
         summary.update(flat_error_mm=error, flat_error_u_mm=u_error)
@@ -174,5 +177,5 @@ def _targets(summary: dict, settings, spherometer, R: float, total: float) -> No
         summary.update(diameter_mm=settings.diameter_mm, focal_ratio=geometry.focal_ratio(R / 2, settings.diameter_mm))
     target = settings.target_radius_mm
     if target:
-        want = geometry.pair_sagitta_sum_mm(target, spherometer.contact_mm(CONCAVE), spherometer.contact_mm(CONVEX))
+        want = spherometer.reading_mm(target, CONCAVE) + spherometer.reading_mm(target, CONVEX)
         summary.update(target_radius_mm=target, radius_to_go_mm=R - target, sagitta_to_go_mm=want - total)

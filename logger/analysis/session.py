@@ -24,7 +24,8 @@ from logger.analysis.pair import analyse_pair
 from logger.analysis.phases import FLAT, SURFACE, classify, pair_phases
 from logger.analysis.seating import Seating
 from logger.analysis.zero import Zero, curvature_p, fit_zero, zero_u_at
-from logger.analysis.uncertainty import Budget, Component, coverage_interval_U, radius_budget, reading_components
+from logger.analysis.montecarlo import coverage_interval_U
+from logger.analysis.uncertainty import Budget, Component, radius_budget, reading_components
 
 
 
@@ -209,7 +210,7 @@ def _result(decisions, good, good_flats, zero: Zero, zero_fit, summary: dict, pr
     r, rho = profile.contact_mm(surface)
     summary.update(ring_radius_mm=r, foot_radius_mm=rho)
     try:
-        radius = geometry.radius_from_sagitta_mm(s_mean, r, rho, surface)
+        radius = profile.spherometer.radius_mm(s_mean, surface)
     except UserError as exc:
         summary.update(status="not estimable", message=f"The mean sagitta gives no radius: {exc}.")
         return SessionResult(decisions, summary)
@@ -286,8 +287,7 @@ def _targets(summary, settings, profile, surface, radius, s_mean) -> None:
         summary.update(diameter_mm=d, focal_ratio=geometry.focal_ratio(radius / 2.0, d))
     tr = settings.target_radius_mm
     if tr:
-        r, rho = profile.contact_mm(surface)
-        target_s = geometry.probe_sagitta_mm(tr, r, rho, surface)
+        target_s = profile.spherometer.reading_mm(tr, surface)
         summary.update(target_radius_mm=tr, radius_to_go_mm=radius - tr, sagitta_to_go_mm=target_s - s_mean)
 
 
@@ -305,7 +305,8 @@ def _base_summary(profile: Profile, settings: AnalysisSettings) -> dict:
         same_count=False, rejection=settings.rejection, budget=[],
         spherometer=dict(kind=profile.spherometer.kind, params_mm=dict(profile.spherometer.params_mm),
                          u_mm=dict(profile.spherometer.u_mm), name=profile.name),
-        ring_radius_mm=r_cc, foot_radius_mm=rho, resolution_mm=profile.indicator.resolution_mm,
+        ring_radius_mm=r_cc, foot_radius_mm=rho, probe_offset_mm=profile.spherometer.probe_offset_mm(),
+        resolution_mm=profile.indicator.resolution_mm,
         sense=profile.indicator.sense,
     )
     if r_cv != r_cc:

@@ -6,8 +6,8 @@ input with its sensitivity coefficient.  They combine in quadrature (GUM
 from the Welch-Satterthwaite formula (GUM G.4.1), and the expanded
 uncertainty uses the Student t factor for the coverage probability (GUM
 G.3, G.4).  `radius_budget` builds the budget of a radius from a sagitta and
-a spherometer; `monte_carlo_radius` propagates the same inputs through the
-exact, non-linear relation so the tests can confirm the linearised budget.
+a spherometer; logger.analysis.montecarlo propagates the same inputs through
+the exact, non-linear relation so the tests can confirm the linearised budget.
 Every length is in millimetres.
 """
 
@@ -37,6 +37,7 @@ _INPUT_LABELS = {
     "outer_diameter": "ring outer diameter",
     "edge_radius": "ring edge radius",
     "ring_radius": "ring radius",
+    **{f"probe_{x}": f"probe distance to ball {x.upper()}" for x in "abc"},
 }
 
 
@@ -236,20 +237,24 @@ def _dof_json(dof: float):
     return None if math.isinf(dof) else dof
 
 
-def _input_sensitivity(spherometer, surface: str, sagitta_mm: float, name: str) -> float:
-    """dR/dx for one spherometer input by a central difference through contact_mm.
+def sensitivity(radius_of, params: dict, names) -> float:
+    """dR/dx by a central difference, every input in `names` moved together by the same x.
 
-    Going through contact_mm means an input that enters both the ring
-    radius and the foot radius (a ring's edge radius) is handled right.
+    `radius_of(params)` is the result as a function of the instrument's
+    inputs (the reading held fixed): through `Spherometer.radius_mm` an input
+    that enters both the ring radius and the foot radius (a ring's edge
+    radius), or the probe's offset too (a leg), is handled right.  Several
+    names moved together give the sensitivity to an error they share.
     """
-    x = spherometer.params_mm[name]
-    h = 1e-6 * max(abs(x), 1.0)
+    h = 1e-6 * max(max(abs(params[x]) for x in names), 1.0)
+    Rs = [radius_of(dict(params, **{x: params[x] + d for x in names})) for d in (h, -h)]
+    return (Rs[0] - Rs[1]) / (2.0 * h)
 
-    def R(value):
-        params = dict(spherometer.params_mm, **{name: value})
-        return geometry.radius_from_sagitta_mm(sagitta_mm, *spherometer.contact_mm(surface, params), surface)
 
-    return (R(x + h) - R(x - h)) / (2.0 * h)
+def input_components(spherometer, radius_of) -> list[Component]:
+    """One Type B component per spherometer input with a non-zero standard uncertainty."""
+    return [Component(_INPUT_LABELS.get(name, name), u, sensitivity(radius_of, spherometer.params_mm, [name]))
+            for name, u in spherometer.u_mm.items() if u > 0]
 
 
 def radius_budget(spherometer, surface: str, sagitta_mm: float, sagitta_components: Sequence[Component]) -> Budget:
@@ -258,97 +263,72 @@ def radius_budget(spherometer, surface: str, sagitta_mm: float, sagitta_componen
     `sagitta_components` are the uncertainties of the sagitta (seating
     scatter, resolution, zero, ...), each with its sensitivity dS/dx
     (usually 1); they are scaled by dR/ds.  One Type B component is added per
-    spherometer input with a non-zero standard uncertainty.
+    spherometer input with a non-zero standard uncertainty (the probe's
+    distances to the balls among them, when given), and the rig's other sources.
     """
-    ring_mm, foot_mm = spherometer.contact_mm(surface)
-    value = geometry.radius_from_sagitta_mm(sagitta_mm, ring_mm, foot_mm, surface)
-    dR_ds = geometry.dradius_dsagitta(sagitta_mm, ring_mm)
+    value = spherometer.radius_mm(sagitta_mm, surface)
+    dR_ds = geometry.dradius_dsagitta(sagitta_mm, spherometer.contact_mm(surface)[0])
     comps = [
         Component(c.name, c.u, c.sensitivity * dR_ds, c.dof, c.kind, c.distribution) for c in sagitta_components
     ]
-    for name, u in spherometer.u_mm.items():
-        if u > 0:
-            comps.append(
-                Component(_INPUT_LABELS.get(name, name), u, _input_sensitivity(spherometer, surface, sagitta_mm, name))
-            )
-    comps += systematic_components(spherometer, surface, sagitta_mm, value, dR_ds)
+    radius_of = lambda params: spherometer.radius_mm(sagitta_mm, surface, params)  # noqa: E731
+    comps += input_components(spherometer, radius_of)
+    comps += systematic_components(spherometer, surface, radius_of, value, dR_ds)
     return Budget("radius of curvature", value, tuple(comps))
 
 
-_LEGS = ("a", "b", "c", *(f"{how}_{x}" for how in ("outside", "inside") for x in "abc"))
+LEG_INPUTS = ("a", "b", "c", *(f"{how}_{x}" for how in ("outside", "inside") for x in "abc"))
 
 
-def systematic_components(spherometer, surface: str, sagitta_mm: float, radius_mm: float,
-                          dR_ds: float) -> list[Component]:
+def systematic_components(spherometer, surface: str, radius_of, radius_mm: float, dR_dreading: float,
+                          pieces: int = 1) -> list[Component]:
     """The rig's error sources beyond its measured inputs (profile [uncertainty], logger.config.profile).
 
-    The flat's flatness F and the indicator's error of indication E each
-    shift the sagitta by up to +-F, +-E: rectangular, sensitivity dR/ds.  A
-    probe off the circumcentre by up to e makes R read long by up to
-    R e^2 / r^2 (about; tests/analysis/test_probe_offset.py builds it
-    exactly); not knowing the sign of a one-sided bias that is not
+    `radius_of(params)` gives R from the instrument's inputs, the reading
+    held fixed; dR_dreading is R's sensitivity to that reading, which is one
+    piece's sagitta against the flat (pieces = 1) or the mirror-and-tool sum
+    s_cc + s_cv (pieces = 2, logger.analysis.pair).
+
+    The flat's flatness F shifts a sagitta by up to +-F: rectangular,
+    sensitivity dR/ds.  It is not in the pair's sum: with a flat it enters
+    the two pieces' sagittas with opposite signs (the zero is off by F, the
+    concave piece reads deeper and the convex one shallower by as much), and
+    without one there is no zero at all.  The indicator's error of
+    indication E bounds the error over the travel of one sagitta; the sum
+    spans both pieces' (concave level, zero, convex level), so its bound is
+    pieces x E.  A probe off the circumcentre by up to e makes each piece
+    read short by sag(R, e), about e^2 / (2 R), and R read long by about
+    R e^2 / r^2, for one piece (dR/ds about -2 R^2 / r^2) and for the pair
+    alike (twice the shift, half the slope); tests/analysis/test_probe_offset.py
+    builds it exactly.  Not knowing the sign of a one-sided bias that is not
     corrected, it is carried as a symmetric rectangle of that half-width,
-    which covers it.  A caliper error common to the three legs is one input
-    entering each leg with sensitivity 1: GUM 5.2 with correlation
-    u_common^2 / (u_common^2 + u_leg^2) between the legs; its sensitivity
-    is the sum of the three legs'.
+    which covers it; when the probe's distances to the balls are given, R is
+    corrected instead (Spherometer.radius_mm) and their uncertainties are
+    inputs like the legs.  A caliper error common to the legs is one input
+    added to each leg: GUM 5.2 with correlation u_common^2 / (u_common^2 +
+    u_leg^2) between them, its sensitivity that of the legs moved together.
     """
     sys_mm = spherometer.systematic_mm
     out = []
-    for key, label in (("flat_flatness", "reference flat's flatness over the ring"),
-                       ("indicator_error", "indicator's error of indication")):
-        if sys_mm.get(key, 0.0) > 0:
-            out.append(Component(label, sys_mm[key] / math.sqrt(3.0), dR_ds, distribution="rectangular"))
+    for key, label, times in (("flat_flatness", "reference flat's flatness over the ring", 0 if pieces > 1 else 1),
+                              ("indicator_error", "indicator's error of indication", pieces)):
+        if sys_mm.get(key, 0.0) > 0 and times:
+            out.append(Component(label, times * sys_mm[key] / math.sqrt(3.0), dR_dreading, distribution="rectangular"))
     e = sys_mm.get("probe_offset", 0.0)
-    if e > 0:
-        ring_mm = spherometer.contact_mm(surface)[0]
-        out.append(Component("probe offset from the circumcentre", radius_mm * e * e / ring_mm**2 / math.sqrt(3.0),
-                             distribution="rectangular"))
+    if e > 0 and spherometer.probe_offset_mm() is None:
+        out.append(Component("probe offset from the circumcentre", probe_bias_mm(spherometer, surface, radius_mm, e)
+                             / math.sqrt(3.0), distribution="rectangular"))
     common = sys_mm.get("caliper_common", 0.0)
     if common > 0:
-        legs = [x for x in _LEGS if x in spherometer.params_mm]
+        legs = [x for x in LEG_INPUTS if x in spherometer.params_mm]
         out.append(Component("caliper error common to the legs", common,
-                             sum(_input_sensitivity(spherometer, surface, sagitta_mm, x) for x in legs)))
+                             sensitivity(radius_of, spherometer.params_mm, legs)))
     return out
 
 
-def _draw(rng: np.random.Generator, c: Component, n: int) -> np.ndarray:
-    """n draws of an input's error, zero mean, per JCGM 101:2008 6.4."""
-    if c.distribution == "rectangular":  # 6.4.2: half-width a = sqrt(3) u
-        a = math.sqrt(3.0) * c.u
-        return rng.uniform(-a, a, n)
-    if c.distribution == "t":  # 6.4.9: scaled and shifted t, scale s/sqrt(n) = u, nu = n - 1
-        return c.u * rng.standard_t(c.dof, n)
-    return rng.normal(0.0, c.u, n)  # 6.4.7
-
-
-def monte_carlo_radius(
-    spherometer, surface: str, sagitta_mm: float, sagitta_components: Sequence[Component], n: int = 200_000, seed: int = 0
-) -> np.ndarray:
-    """Samples of R from the exact relation with every input drawn from its distribution (JCGM 101:2008).
-
-    Sagitta errors enter with their own sensitivities dS/dx; the spherometer's
-    inputs are drawn normal with their standard uncertainties.
-    """
-    if n < 1:
-        raise UserError(f"Monte Carlo needs at least one trial, got {n}")
-    rng = np.random.default_rng(seed)
-    s = np.full(n, float(sagitta_mm))
-    for c in sagitta_components:
-        s = s + c.sensitivity * _draw(rng, c, n)
-    sys_mm = spherometer.systematic_mm
-    for key in ("flat_flatness", "indicator_error"):  # rectangular, half-width as stated
-        s = s + rng.uniform(-1.0, 1.0, n) * sys_mm.get(key, 0.0)
-    common = rng.normal(0.0, sys_mm.get("caliper_common", 0.0), n)  # one draw shared by the three legs
-    params = {
-        name: x + (rng.normal(0.0, spherometer.u_mm.get(name, 0.0), n) if spherometer.u_mm.get(name, 0.0) > 0 else 0.0)
-        + (common if name in _LEGS else 0.0)
-        for name, x in spherometer.params_mm.items()
-    }
-    ring_mm, foot_mm = spherometer.contact_mm(surface, params)
-    R = np.broadcast_to(geometry.radius_from_sagitta_mm(s, ring_mm, foot_mm, surface), (n,)).copy()
-    e = sys_mm.get("probe_offset", 0.0)  # as in systematic_components: +-R e^2 / r^2, rectangular
-    return R + rng.uniform(-1.0, 1.0, n) * R * e * e / ring_mm**2
+def probe_bias_mm(spherometer, surface: str, radius_mm, e_mm: float):
+    """How far R reads long with the probe up to e off the circumcentre, about R e^2 / r^2."""
+    return radius_mm * e_mm * e_mm / spherometer.contact_mm(surface)[0] ** 2
 
 
 def seatings_needed(
@@ -373,28 +353,3 @@ def seatings_needed(
     per_seating = (geometry.dradius_dsagitta(sagitta_mm, ring_radius_mm) * scatter_mm) ** 2 * (1.0 + zero_factor)
     # The tiny allowance keeps an exact integer ratio from rounding up by one.
     return max(1, math.ceil(per_seating / room * (1.0 - 1e-12)))
-
-
-MC_TRIALS = 20_000  # for the coverage interval: its 95 % ends are then known to about 1 %
-
-
-def coverage_interval_U(budget: Budget, spherometer, surface: str, sagitta_mm: float,
-                        sagitta_components: Sequence[Component]) -> tuple[float, str]:
-    """The expanded uncertainty, and how it was found.
-
-    When rectangular terms carry most of u_c^2, the output is far from normal
-    and k = 2 overstates U (a rectangle's 95 % half-width is 1.65 u); the
-    probabilistically symmetric coverage interval of the Monte Carlo then
-    gives U as half its width (JCGM 101:2008 7.7), drawn with a fixed seed so
-    that a replay repeats it exactly.  Otherwise, or when draws fall where the
-    relation has no sphere (a sagitta not clear of its own scatter), the GUM's k u_c.
-    """
-    rect = math.fsum(c.contribution**2 for c in budget.components if c.distribution == "rectangular")
-    if budget.u_c == 0 or rect <= 0.5 * budget.u_c**2:
-        return budget.U, "GUM k u_c"
-    try:
-        draws = monte_carlo_radius(spherometer, surface, sagitta_mm, sagitta_components, n=MC_TRIALS, seed=0)
-    except UserError:  # draws beyond any sphere (a sagitta barely above its own scatter): no interval to take
-        return budget.U, "GUM k u_c"
-    lo, hi = np.quantile(draws, [(1 - budget.p) / 2, (1 + budget.p) / 2])
-    return float(hi - lo) / 2.0, "Monte Carlo coverage interval (JCGM 101)"

@@ -38,7 +38,8 @@ def _echo_json(data: dict) -> None:
 @click.option("--zero-u", type=NON_NEGATIVE, help="Standard uncertainty of the zero (profile's unit), if known.")
 @click.option("--json", "as_json", is_flag=True, help="Print JSON for scripts.")
 def radius(profile_path, sagitta, surface, scatter, mean_of, old_seatings, zero_u, as_json):
-    """Radius of curvature and focal length from one sagitta (feet correction included)."""
+    """Radius of curvature and focal length from one sagitta (feet correction included; the probe's offset
+    too when the profile gives its distances to the balls)."""
     if old_seatings is not None:  # capture's stop-after-N; here the count of a mean has its own name
         raise UserError(f"--seatings {old_seatings}: radius takes --mean-of {old_seatings} "
                         "(the sagitta is the mean of that many seatings)")
@@ -51,7 +52,7 @@ def radius(profile_path, sagitta, surface, scatter, mean_of, old_seatings, zero_
     s_mm = to_mm(sagitta, unit)
     ring_mm, foot_mm = profile.contact_mm(surface)
     try:
-        R_mm = geometry.radius_from_sagitta_mm(s_mm, ring_mm, foot_mm, surface)
+        R_mm = profile.spherometer.radius_mm(s_mm, surface)
     except UserError as exc:
         raise UserError(f"--sagitta {sagitta:g} {unit}: {exc}") from None
     q_mm = profile.indicator.resolution_mm
@@ -106,11 +107,10 @@ def plan(profile_path, diameter, focal_ratio, focal_length, scatter, radius_u, a
         depth_mm = geometry.aperture_depth_mm(R_mm, D_mm)
     except UserError as exc:
         raise UserError(f"--diameter {diameter:g} {unit}: too large for the target radius ({exc})") from None
-    ring_cc, foot_cc = profile.contact_mm("concave")
-    ring_cx, foot_cx = profile.contact_mm("convex")
+    ring_cc = profile.contact_mm("concave")[0]
     try:
-        s_mm = geometry.probe_sagitta_mm(R_mm, ring_cc, foot_cc, "concave")
-        tool_mm = geometry.probe_sagitta_mm(R_mm, ring_cx, foot_cx, "convex")
+        s_mm = profile.spherometer.reading_mm(R_mm, "concave")
+        tool_mm = profile.spherometer.reading_mm(R_mm, "convex")
     except UserError as exc:
         raise UserError(f"{target}: the target radius is too short for this spherometer ({exc})") from None
     q_mm = profile.indicator.resolution_mm
@@ -160,9 +160,9 @@ def plan(profile_path, diameter, focal_ratio, focal_length, scatter, radius_u, a
 
 def _rig_terms(profile, s_mm: float, R_mm: float) -> dict:
     """Each of the rig's other sources as its share of u(R) at the target, in the profile's unit."""
-    ring_mm = profile.contact_mm("concave")[0]
-    comps = systematic_components(profile.spherometer, "concave", s_mm, R_mm,
-                                  geometry.dradius_dsagitta(s_mm, ring_mm))
+    sph = profile.spherometer
+    comps = systematic_components(sph, "concave", lambda params: sph.radius_mm(s_mm, "concave", params), R_mm,
+                                  geometry.dradius_dsagitta(s_mm, sph.contact_mm("concave")[0]))
     return {c.name: from_mm(c.contribution, profile.unit) for c in comps}
 
 
@@ -198,6 +198,10 @@ def profile_text(data: dict, comment: str) -> str:
 @click.option("--leg-spacings", "--centres", "centres", type=POSITIVE, nargs=3, metavar="A B C",
               help="The leg spacings: centre-to-centre distances of the balls (the profile's leg_spacings).")
 @click.option("--ball", type=POSITIVE, help="Ball diameter (three-ball; optional for --ring-radius).")
+@click.option("--probe-distances", type=POSITIVE, nargs=3, metavar="DA DB DC",
+              help="Three-ball, optional: the probe tip's distances to the centres of balls A, B, C (ball A faces "
+                   "leg spacing a), in the balls' plane; the radius is then corrected for the probe's offset "
+                   "from the centre.")
 @click.option("--ring-inner", type=POSITIVE, help="Ring spherometer: inner diameter of the ring.")
 @click.option("--ring-outer", type=POSITIVE, help="Ring spherometer: outer diameter of the ring.")
 @click.option("--edge-radius", type=NON_NEGATIVE, help="Ring spherometer: radius of the rounded edges (default 0).")
@@ -207,8 +211,8 @@ def profile_text(data: dict, comment: str) -> str:
 @click.option("--indicator-unit", type=click.Choice(UNITS), help="Unit of stream lines that carry none (default: --unit).")
 @click.option("--name", default="", help="A label for the instrument.")
 @click.option("--force", is_flag=True, help="Replace FILE.toml if it exists.")
-def new_profile(out_path, unit, outside, inside, centres, ball, ring_inner, ring_outer, edge_radius, ring_radius,
-                resolution, sense, indicator_unit, name, force):
+def new_profile(out_path, unit, outside, inside, centres, ball, probe_distances, ring_inner, ring_outer, edge_radius,
+                ring_radius, resolution, sense, indicator_unit, name, force):
     """Write a spherometer profile from caliper readings.
 
     Outside-to-outside of two balls is the centre distance plus one ball
@@ -224,6 +228,8 @@ def new_profile(out_path, unit, outside, inside, centres, ball, ring_inner, ring
         raise UserError("give exactly one of --outside, --inside, --leg-spacings (three-ball), "
                         "--ring-inner/--ring-outer (ring) or --ring-radius (calibrated)")
     kind = kinds[0]
+    if probe_distances and kind != "three-ball":
+        raise UserError("--probe-distances: only a three-ball spherometer has balls to measure the probe from")
     if kind == "three-ball":
         (option, values), = readings.items()
         if ball is None:
@@ -235,6 +241,9 @@ def new_profile(out_path, unit, outside, inside, centres, ball, ring_inner, ring
         else:  # kept as read: the legs then share the ball's error in the budget
             sph = {"kind": kind, "leg_readings": list(values), "readings": option[2:], "ball_diameter": ball}
         how = f"{option[2:]} readings {' '.join(f'{v:g}' for v in values)} {unit}, ball {ball:g} {unit}"
+        if probe_distances:
+            sph["probe_distances"] = list(probe_distances)
+            how += f", probe distances {' '.join(f'{v:g}' for v in probe_distances)} {unit}"
     elif kind == "ring":
         if ring_inner is None or ring_outer is None:
             raise UserError("--ring-inner and --ring-outer are both needed for a ring spherometer")

@@ -27,15 +27,25 @@ from logger.run.load import load_run
 from logger.run.writer import write_atomic
 from logger.units import from_mm, to_mm
 
+# The rig's sources that a calibrated profile keeps from the one it was calibrated with; a caliper error
+# common to the legs has no legs left to act on (the ring radius now comes from the references).
+CARRIED = ("flat_flatness", "indicator_error", "probe_offset")
 RING_GUARD = 0.05  # a reference whose ring radius is this far (relative) from the profile's is the wrong one
 
 
 def _run_profile(run) -> Profile:
-    """The instrument a run was analysed with, from its settings.json."""
+    """The instrument a run was analysed with, from its settings.json.
+
+    The rig's other error sources (`systematic_mm`) and a calibrated profile's ball coupling are
+    rebuilt too, so a calibration from a run folder carries the same sources as one from the
+    profile; a folder written before they were recorded has none, and the calibrated profile then
+    falls back to the defaults (logger.config.profile.DEFAULT_SYSTEMATIC_MM)."""
     st = run.settings
     try:
         sph, ind = st["spherometer"], st["indicator"]
-        return Profile(st["profile_unit"], Spherometer(sph["kind"], dict(sph["params_mm"]), dict(sph["u_mm"])),
+        spherometer = Spherometer(sph["kind"], dict(sph["params_mm"]), dict(sph["u_mm"]),
+                                  float(sph.get("ball_coupling", 0.0)), dict(sph.get("systematic_mm", {})))
+        return Profile(st["profile_unit"], spherometer,
                        Indicator(float(ind["resolution_mm"]), ind["sense"], ind["unit"]), source=str(st["profile"]))
     except (KeyError, TypeError, ValueError):
         raise UserError(f"{run.path / 'settings.json'}: no profile recorded; give --profile") from None
@@ -97,7 +107,8 @@ def _profile_data(cal: Calibration, profile: Profile, name: str) -> dict:
         "spherometer": {"kind": "calibrated", "ring_radius": from_mm(cal.ring_radius_mm, u),
                         "ball_diameter": from_mm(ball_mm, u)},
         "indicator": {"resolution": from_mm(ind.resolution_mm, u), "sense": ind.sense, "unit": ind.unit},
-        "uncertainty": {"ring_radius": from_mm(cal.u_without_ball_mm, u), "ball_diameter": from_mm(ball_u_mm, u)},
+        "uncertainty": {"ring_radius": from_mm(cal.u_without_ball_mm, u), "ball_diameter": from_mm(ball_u_mm, u),
+                        **{k: from_mm(v, u) for k, v in profile.spherometer.systematic_mm.items() if k in CARRIED}},
         "calibration": {
             "ring_radius_per_ball_diameter": cal.ball_coefficient, "ring_radius_u": from_mm(cal.u_mm, u),
             "sagitta_min": from_mm(lo, u), "sagitta_max": from_mm(hi, u),

@@ -37,6 +37,9 @@ DEFAULT_U_MM = {
     "outer_diameter": 0.02 / math.sqrt(3),
     "edge_radius": 0.025,
     "ring_radius": 0.01,
+    # a probe's tip is gauged less well than a ball: calipers across the spindle and a ball, less
+    # half of each (common practice, from memory: a few hundredths of a millimetre at best)
+    "probe_distance": 0.05,
 }
 
 # Error sources of a real rig beyond the measured inputs, as bounds (half-widths, mm) unless said;
@@ -64,7 +67,7 @@ _TOP_KEYS = {"unit", "name", "spherometer", "indicator", "uncertainty", "calibra
 _CAL_USED = {"ring_radius_per_ball_diameter", "sagitta_min", "sagitta_max"}
 _CAL_RECORD = {"ring_radius_u", "birge_ratio", "date", "saglog_version", "references"}
 _SPH_KEYS = {
-    "three-ball": ({"kind", "ball_diameter"}, {"leg_spacings", "leg_readings", "readings"}),
+    "three-ball": ({"kind", "ball_diameter"}, {"leg_spacings", "leg_readings", "readings", "probe_distances"}),
     "ring": ({"kind", "inner_diameter", "outer_diameter"}, {"edge_radius"}),
     "calibrated": ({"kind", "ring_radius"}, {"ball_diameter"}),
 }
@@ -116,6 +119,25 @@ class Spherometer:
         d = p["ball_diameter"]
         return p["ring_radius"] + self.ball_coupling * (d - self.params_mm["ball_diameter"]), d / 2.0
 
+    def probe_offset_mm(self, params: dict | None = None):
+        """The probe's distance from the circumcentre of the ball centres, when its distances to the
+        balls are given (`probe_distances`), else None (the budget then carries the offset's bound)."""
+        p = self.params_mm if params is None else params
+        if "probe_a" not in p:
+            return None
+        return geometry.probe_offset_from_distances_mm(self.legs_mm(p), [p[f"probe_{x}"] for x in "abc"])
+
+    def radius_mm(self, sagitta_mm, surface: str, params: dict | None = None):
+        """R from a sagitta with these inputs: the contact geometry, and the probe's offset when known."""
+        e = self.probe_offset_mm(params)
+        return geometry.radius_from_sagitta_mm(sagitta_mm, *self.contact_mm(surface, params), surface,
+                                               0.0 if e is None else e)
+
+    def reading_mm(self, radius_mm: float, surface: str) -> float:
+        """What this spherometer reads on a sphere of radius R (the inverse of `radius_mm`)."""
+        e = self.probe_offset_mm()
+        return geometry.probe_sagitta_mm(radius_mm, *self.contact_mm(surface), surface, 0.0 if e is None else e)
+
     def legs_mm(self, params: dict | None = None) -> tuple[float, float, float]:
         """Centre-to-centre leg spacings, from the spacings or from caliper readings over the balls.
 
@@ -137,8 +159,10 @@ class Spherometer:
 
         shown = {k: f"{from_mm(v, unit):g} {unit}" for k, v in self.params_mm.items()}
         legs = [shown.pop(k) for k in ("a", "b", "c") if k in shown]
+        probe = [shown.pop(f"probe_{x}") for x in "abc" if f"probe_{x}" in shown]
         parts = ([f"leg spacings a, b, c {', '.join(legs)}"] if legs else []) + [
-            f"{k.replace('_', ' ')} {v}" for k, v in shown.items()]
+            f"{k.replace('_', ' ')} {v}" for k, v in shown.items()] + (
+            [f"probe to balls A, B, C {', '.join(probe)}"] if probe else [])
         return f"{self.kind} ({'; '.join(parts)})"
 
 
@@ -247,7 +271,22 @@ def _three_ball(sph: dict, unit: str, where: str, u_of: dict) -> tuple[dict, dic
         raise UserError(f"{where} {key}: {exc}") from None
     if params["ball_diameter"] / 2 >= r or params["ball_diameter"] > min(legs_mm):
         raise UserError(f"{where} ball_diameter is too large for the leg spacings (the balls would overlap)")
+    if "probe_distances" in sph:
+        _probe_distances(sph["probe_distances"], unit, f"{where} probe_distances", params, u, u_of, r)
     return params, u
+
+
+def _probe_distances(values, unit: str, where: str, params: dict, u: dict, u_of: dict, ring_mm: float) -> None:
+    """The probe's tip to the centres of balls A, B, C (ball A faces leg spacing a), in the balls' plane."""
+    if not isinstance(values, list) or len(values) != 3:
+        raise UserError(f"{where} must be a list of three lengths (to the balls facing leg spacings a, b, c)")
+    for x, v in zip("abc", values):
+        params[f"probe_{x}"] = _length(v, unit, where)
+        u[f"probe_{x}"] = u_of["probe_distance"]
+    e = Spherometer("three-ball", params).probe_offset_mm()
+    if not e < ring_mm:
+        raise UserError(f"{where} put the probe {e:.4g} mm from the centre, outside the ring of the balls "
+                        f"({ring_mm:.4g} mm): check the order (ball A faces leg spacing a) and the unit")
 
 
 def _ring(sph: dict, unit: str, where: str, u_of: dict) -> tuple[dict, dict]:

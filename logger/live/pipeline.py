@@ -38,7 +38,8 @@ class RunSettings:
     def as_dict(self, profile: Profile) -> dict:
         return dict(saglog_version=__version__, profile=profile.source, profile_unit=profile.unit,
                     spherometer=dict(kind=profile.spherometer.kind, params_mm=profile.spherometer.params_mm,
-                                     u_mm=profile.spherometer.u_mm),
+                                     u_mm=profile.spherometer.u_mm, systematic_mm=profile.spherometer.systematic_mm,
+                                     ball_coupling=profile.spherometer.ball_coupling),
                     indicator=asdict(profile.indicator), detector=asdict(self.detector),
                     analysis=self.analysis.as_dict(), source=self.source)
 

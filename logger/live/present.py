@@ -48,4 +48,7 @@ def result_lines(summary: dict) -> list[str]:
         out.append(f"target radius {length_text(summary['target_radius_mm'], unit, 1)}: "
                    f"radius still to go {length_text(summary['radius_to_go_mm'], unit, 1)}, "
                    f"sagitta still to go {length_text(summary['sagitta_to_go_mm'], unit, 5)}")
+    if summary.get("depth_to_go_mm") is not None:  # in the panel's words (logger/live/panel.py)
+        out.append(f"depth still to grind: {length_text(summary['depth_to_go_mm'], unit, 4)} +- "
+                   f"{length_text(summary.get('depth_to_go_U_mm'), unit, 4)} at the centre (sphere)")
     return out

@@ -17,7 +17,6 @@ from logger.analysis.uncertainty import (
     Budget,
     Component,
     coverage_factor,
-    monte_carlo_radius,
     quantisation_bias_rms_mm,
     radius_budget,
     reading_components,
@@ -26,6 +25,7 @@ from logger.analysis.uncertainty import (
     seatings_needed,
 )
 from logger.analysis import geometry
+from logger.analysis.montecarlo import monte_carlo_radius
 from tests.helpers.quantisation import bias_rms_direct
 
 
@@ -375,7 +375,7 @@ def test_flat_and_indicator_bounds_enter_as_rectangles_on_the_sagitta():
 def test_coverage_interval_falls_back_when_draws_leave_every_sphere():
     # A sagitta of 0.002 mm with a 0.003 mm rectangular term: many draws are <= 0 and give no radius
     # (R = (r^2 + s^2) / (2 s) needs s > 0); the GUM's k u_c stands rather than an error.
-    from logger.analysis.uncertainty import coverage_interval_U
+    from logger.analysis.montecarlo import coverage_interval_U
     sph = _three_ball(0.0, 0.0)
     comps = [Component("step", 0.003, distribution="rectangular")]
     b = radius_budget(sph, "concave", 0.002, comps)

@@ -237,7 +237,29 @@ NEW_BAD = [
     (("--unit", "mm", "--resolution", 0.001), ["exactly one"]),
     (("--unit", "mm", "--centres", 70, 70, "--resolution", 0.001), ["--centres"]),
     (("--unit", "mm", "--centres", 70, 70, 70, "--ball", "nan", "--resolution", 0.001), ["--ball"]),
+    (("--unit", "mm", "--ring-inner", 60, "--ring-outer", 70, "--probe-distances", 30, 30, 30, "--resolution", 0.001),
+     ["--probe-distances", "three-ball"]),
+    (("--unit", "mm", "--centres", 70, 70, 70, "--ball", 6, "--probe-distances", 90, 90, 2, "--resolution", 0.001),
+     ["probe_distances", "outside the ring"]),
+    (("--unit", "mm", "--centres", 70, 70, 70, "--ball", 6, "--probe-distances", 40, 40, "--resolution", 0.001),
+     ["--probe-distances"]),
 ]
+
+
+def test_new_profile_with_the_probes_distances_in_inches(tmp_path):
+    # Source: exact construction (tests/helpers/exact_construction.py): the probe's tip 1 mm from the
+    # circumcentre of the example legs; its distances to the balls given in inches (25.4 mm exactly)
+    # must give back the 1 mm offset, and the profile then reads the construction's sphere exactly.
+    from tests.helpers.exact_construction import three_ball_reading_probe_off
+
+    legs_mm, ball_mm = (70.02, 69.98, 70.01), 6.35
+    s_mm, d_mm = three_ball_reading_probe_off(*legs_mm, ball_mm / 2, 2400.0, "concave", (0.0, 1.0))
+    res = _new(tmp_path, "--unit", "in", "--centres", *[x / 25.4 for x in legs_mm], "--ball", ball_mm / 25.4,
+               "--probe-distances", *[x / 25.4 for x in d_mm], "--resolution", 0.00005)
+    assert res.exit_code == 0, res.stderr
+    sph = load_profile(tmp_path / "new.toml").spherometer
+    assert sph.probe_offset_mm() == pytest.approx(1.0, rel=1e-9)
+    assert sph.radius_mm(s_mm, "concave") == pytest.approx(2400.0, rel=1e-9)
 
 
 @pytest.mark.parametrize("args,words", NEW_BAD)

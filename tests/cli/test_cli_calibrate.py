@@ -138,3 +138,31 @@ def test_real_subprocess_writes_and_refuses(runs, tmp_path):
     r = run_saglog("calibrate", runs["plate"], runs["ball"], "--reference-radius", 1500, "--out", tmp_path / "x.toml")
     assert r.returncode == 2 and r.stderr.count("\n") == 1 and "Traceback" not in r.stderr
     assert not (tmp_path / "x.toml").exists()
+
+
+def test_from_a_run_folder_or_from_its_profile_the_same_sources(runs, tmp_path):
+    # A profile stating its own rig sources (not the defaults; invented numbers): a run analysed with it
+    # keeps them in settings.json, the spherometer rebuilt from there equals the profile's, and the
+    # calibrated profiles from the run alone and with --profile carry the same sources, so a mirror
+    # measured with either has the same budget, component by component (GUM 5.1.2: one term per source).
+    from logger.cli.calibrate import _run_profile
+    from logger.run.load import load_run
+
+    text = (tmp_path / "rig.toml")
+    text.write_text('unit = "mm"\n[spherometer]\nkind = "three-ball"\nleg_spacings = [70.02, 69.98, 70.01]\n'
+                    'ball_diameter = 6.35\n[indicator]\nresolution = 0.001\n[uncertainty]\nleg_spacing = 0.012\n'
+                    'flat_flatness = 0.0002\nindicator_error = 0.0004\nprobe_offset = 1.2\ncaliper_common = 0.003\n')
+    plate = _replay(tmp_path, "plate", load_scenario("calibration-test-plate"), str(text))
+    assert _run_profile(load_run(plate)).spherometer == load_profile(text).spherometer
+    budgets, sources = [], []
+    for name, extra in (("from-run", ()), ("from-profile", ("--profile", text))):
+        out = tmp_path / f"{name}.toml"
+        res = run("calibrate", plate, "--reference-radius", 1500, "--reference-u", 0.05, "--out", out, *extra)
+        assert res.exit_code == 0, res.stderr
+        sources.append(load_profile(out).spherometer.systematic_mm)
+        mirror = _replay(tmp_path, f"mirror-{name}", load_scenario("mirror-150-f8-rough"), str(out))
+        budgets.append(json.loads((mirror / "summary.json").read_text())["budget"])
+    assert sources[0] == sources[1] == {"flat_flatness": 0.0002, "indicator_error": 0.0004, "probe_offset": 1.2}
+    assert budgets[0] == budgets[1]
+    assert {c["name"] for c in budgets[0]} >= {"reference flat's flatness over the ring",
+                                               "indicator's error of indication", "probe offset from the circumcentre"}

@@ -102,6 +102,15 @@ BAD = [
     ('unit = "mm"\n[spherometer]\nkind = "calibrated"\n[indicator]\nresolution = 0.001\n', "missing key 'ring_radius'"),
     ('unit = "mm"\n[spherometer]\nkind = "calibrated"\nring_radius = 40.0\nball_diameter = 100.0\n'
      "[indicator]\nresolution = 0.001\n", "ball_diameter is too large for the ring_radius"),
+    (GOOD.replace("ball_diameter = 6.35", "ball_diameter = 6.35\nprobe_distances = [40.0, 40.0]"),
+     "probe_distances must be a list of three"),
+    (GOOD.replace("ball_diameter = 6.35", "ball_diameter = 6.35\nprobe_distances = [40.0, -40.0, 40.0]"),
+     "probe_distances: must be positive"),
+    (GOOD.replace("ball_diameter = 6.35", "ball_diameter = 6.35\nprobe_distances = [80.0, 80.0, 5.0]"),
+     "probe_distances put the probe"),
+    ('unit = "mm"\n[spherometer]\nkind = "ring"\ninner_diameter = 60.0\nouter_diameter = 70.0\n'
+     "probe_distances = [30.0, 30.0, 30.0]\n[indicator]\nresolution = 0.001\n", "unknown key 'probe_distances'"),
+    (GOOD + "[uncertainty]\nprobe_distance = -0.05\n", "[uncertainty] probe_distance"),
 ]
 
 
@@ -135,3 +144,22 @@ def test_ring_uncertainty_keys_are_named_for_the_profile_keys():
     assert (got["inner_diameter"], got["outer_diameter"]) == (0.003, 0.004)
     got = u({"ring_diameter": 0.005, "outer_diameter": 0.004})  # the earlier key sets both; the specific one wins
     assert (got["inner_diameter"], got["outer_diameter"]) == (0.005, 0.004)
+
+
+def test_probe_distances_from_the_centre_of_an_equilateral_rig(tmp_path):
+    # Source: textbook geometry: in an equilateral triangle of side L the circumcentre is L / sqrt(3) from
+    # each vertex; a probe there is on the axis (e = 0), and one moved 1 mm towards ball A is
+    # L / sqrt(3) - 1 from A and, by the law of cosines (120 degrees), sqrt(R0^2 + 1 + R0) from B and C.
+    L = 70.0
+    R0 = L / math.sqrt(3)
+    on_axis = load_profile(_write(tmp_path, GOOD.replace("ball_diameter = 6.35", f"ball_diameter = 6.35\n"
+                                                          f"probe_distances = [{R0!r}, {R0!r}, {R0!r}]")))
+    assert on_axis.spherometer.probe_offset_mm() == pytest.approx(0.0, abs=1e-9)
+    other = math.sqrt(R0**2 + 1.0 + R0)
+    moved = load_profile(_write(tmp_path, GOOD.replace("ball_diameter = 6.35", f"ball_diameter = 6.35\n"
+                                                       f"probe_distances = [{R0 - 1!r}, {other!r}, {other!r}]"
+                                                       ) + "[uncertainty]\nprobe_distance = 0.03\n", "m.toml"))
+    assert moved.spherometer.probe_offset_mm() == pytest.approx(1.0, rel=1e-12)
+    assert moved.spherometer.u_mm["probe_a"] == 0.03
+    assert DEFAULT_U_MM["probe_distance"] == on_axis.spherometer.u_mm["probe_b"]
+    assert f"probe to balls A, B, C {R0 - 1:g} mm, {other:g} mm" in moved.spherometer.describe()  # as the report says it

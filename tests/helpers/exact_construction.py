@@ -105,3 +105,26 @@ def reading_off_axis(R: float, r: float, rho: float, e: float) -> float:
     centres = R - math.sqrt((R - rho) ** 2 - r * r)
     tip = R - math.sqrt(R * R - e * e)
     return (centres - rho) - tip
+
+
+def three_ball_reading_probe_off(a: float, b: float, c: float, foot_radius: float, R: float, surface: str,
+                                 offset_xy) -> tuple[float, np.ndarray]:
+    """The reading with the probe's tip moved `offset_xy` (in the balls' plane) from the circumcentre,
+    and the tip's distances to the three ball centres (in that plane).
+
+    Built as `three_ball_reading`: the sphere's centre C straight above (concave) or below (convex)
+    the circumcentre, where every ball touches it; the probe's line, square to the balls' plane
+    through Q, meets the sphere at z = C_z -+ sqrt(R^2 - |Q - O|^2) (the near branch).
+    """
+    P = ball_centres(a, b, c)
+    O = probe_axis(P)
+    Q = O + np.asarray(offset_xy, dtype=float)
+    d2 = float(((P[0, :2] - O) ** 2).sum())
+    q2 = float(((Q - O) ** 2).sum())
+    if surface == "concave":
+        Cz = math.sqrt((R - foot_radius) ** 2 - d2)
+        reading = -foot_radius - (Cz - math.sqrt(R * R - q2))
+    else:
+        Cz = -math.sqrt((R + foot_radius) ** 2 - d2)
+        reading = Cz + math.sqrt(R * R - q2) + foot_radius
+    return reading, np.linalg.norm(P[:, :2] - Q, axis=1)

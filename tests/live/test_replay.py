@@ -9,7 +9,7 @@ import numpy as np
 import pandas as pd
 from click.testing import CliRunner
 
-from tests.helpers.paths import EXAMPLE_PROFILE, run_saglog
+from tests.helpers.paths import EXAMPLE_PROFILE, SAMPLE_STREAMS, run_saglog
 from logger.cli.main import main
 from logger.formats.recording import RecWriter
 
@@ -134,3 +134,21 @@ def test_settings_json_records_only_the_parameter_that_applies(tmp_path):
 def test_overflowing_numbers_are_a_one_line_error():
     r = CliRunner().invoke(main, ["radius", "--profile", str(EXAMPLE_PROFILE), "--sagitta", "1e-200"])
     assert r.exit_code == 2 and "out of range" in r.stderr and "Traceback" not in r.stderr
+
+
+def test_the_end_lines_give_the_depth_still_to_grind_in_the_panels_words(tmp_path):
+    """The sample mirror (invented data) replayed with a target: the end lines carry the depth still to
+    grind at the centre, sag(R_target, D/2) - sag(R, D/2) with sag(R, h) = R - sqrt(R^2 - h^2) (textbook
+    sphere relation), its U from d sag / dR = 1 - R / sqrt(R^2 - h^2) times the radius's U (GUM 5.1.3)."""
+    out = tmp_path / "run"
+    r = CliRunner().invoke(main, ["replay", str(SAMPLE_STREAMS / "mirror-150-f8-rough.rec"), "--profile",
+                                  str(EXAMPLE_PROFILE), "--out", str(out), "--target-radius", "2350",
+                                  "--diameter", "150"])
+    assert r.exit_code == 0, r.output
+    s = json.loads((out / "summary.json").read_text())
+    R, U, h = s["radius_mm"], s["radius_U_mm"], 75.0
+    sag = lambda radius: radius - math.sqrt(radius * radius - h * h)  # noqa: E731
+    depth, depth_U = sag(2350.0) - sag(R), abs(1 - R / math.sqrt(R * R - h * h)) * U
+    (line,) = [x for x in r.output.splitlines() if x.startswith("depth still to grind")]
+    assert line == f"depth still to grind: {depth:.4f} mm +- {depth_U:.4f} mm at the centre (sphere)"
+    assert depth > 0.01  # a shorter target: glass still to come out

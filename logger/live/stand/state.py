@@ -31,13 +31,14 @@ def surface_series(decisions, summary: dict) -> dict:
     """Accepted surface seatings in time order: their radius, and the running mean with its band (mm)."""
     out = dict(index=[], radius_mm=[], mean_mm=[], low_mm=[], high_mm=[])
     surface, r, rho = summary.get("surface"), summary.get("ring_radius_mm"), summary.get("foot_radius_mm")
+    e = summary.get("probe_offset_mm") or 0.0  # known from the probe's distances to the balls, else 0
     if surface not in geometry.SURFACES or r is None or rho is None:
         return out
     sagittas = []
 
     def radius(s):
         try:
-            return geometry.radius_from_sagitta_mm(s, r, rho, surface)
+            return geometry.radius_from_sagitta_mm(s, r, rho, surface, e)
         except UserError:  # a sagitta no sphere on this ring gives: left out of the plot
             return None
 
