@@ -60,7 +60,7 @@ def test_pooled_residuals_set_the_floor_when_they_are_wider():
 
 
 # docs/measurement.md states: over scatters of 0.8-2 counts, at most 3 % of honest sessions lose a
-# seating to the rejection (about 1.3 % measured: benchmarks/grit_study.py).
+# seating to the rejection (1.3-1.7 % measured: benchmarks/grit_study.py).
 STATED_HONEST_RATE = 0.03
 
 
