@@ -12,12 +12,11 @@ deletes anything: the session keeps rejected seatings in its files.
   parameter: the 1/2 is the criterion itself (tuning it makes another test).
 With quantised readings many seatings show the same count and the spread
 becomes zero, so every honest seating one count off would look like an
-outlier: `judge` floors the MAD, and the SD of the last two, at the
-indicator step.  The modified-z cut then sits at 3.5 / 0.6745 = 5.2 counts
-whenever the seatings scatter by less than about a count and a half, and a
-grain that shifts a seating by less goes unseen: `detectable_shift` states
-the smallest shift each test can tell from the scatter, so the summary can
-say so.
+outlier: `judge` floors the MAD, and the SD of the last two, at a scale the
+seatings can honestly have (`scale_floor`): one count when nothing dithers
+the step, less when the noise within each seating does.  `detectable_shift`
+states the smallest shift each test can tell from the scatter under that
+floor, so the summary can say so.
 
 `REJECTIONS` maps each method's name to its test and the one parameter that
 tunes it; `METHODS` (the --rejection choices) are its keys, so a new method is
@@ -34,9 +33,42 @@ from typing import Callable
 import numpy as np
 from scipy import stats
 
+from logger.analysis.uncertainty import dither_sd_mm, quantisation_bias_rms_mm
 from logger.errors import UserError
 
 MAD_TO_Z = 0.6745  # Iglewicz & Hoaglin's constant: the upper quartile of the standard normal
+FLOOR_LEAST_COUNTS = 0.8  # the floor never goes below this many counts (see scale_floor)
+FLOOR_POOLED_MADS = 1.5  # and never below this many MADs of the session's seatings pooled (see scale_floor)
+
+
+def scale_floor(step_mm: float, within_sd_mm: float, residuals_mm=()) -> float:
+    """The least scale (mm) the seatings of one session can honestly show: the MAD's floor.
+
+    A seating is a mean of quantised samples.  With no noise within it, it
+    sits on a whole count and two seatings differ by whole counts, so the floor
+    is one count.  Noise within a seating dithers the step, and the mean's
+    error is then its quantisation bias, whose RMS over the unknown offset is
+    `quantisation_bias_rms_mm` (Widrow and Kollar), q / sqrt(12) undithered:
+    the seatings behave as if read with an effective step of sqrt(12) times it,
+    which falls smoothly from one count as the noise grows.  The noise is the
+    measured within-seating SD less Sheppard's q^2 / 12 (`dither_sd_mm`), which
+    errs towards less dither, a larger floor.
+
+    Below a count the floor must still stand above the MAD's own chance lows:
+    with no floor, |M| > 3.5 throws out an honest seating from about one group
+    of ten normal values in eight.  The flats and the surface are seated by the
+    same hands on the same instrument, so `residuals_mm` (each phase's steady
+    seatings about the flats' trend, a sequence of arrays, each centred on its
+    own median) pooled give a steadier scale: the floor is at least
+    FLOOR_POOLED_MADS of their MAD, and never below FLOOR_LEAST_COUNTS counts.
+    Both were set by simulation so that honest sessions lose a seating no more
+    often than under the one-count floor while smaller grains are caught
+    (benchmarks/grit_study.py, docs/measurement.md).
+    """
+    effective_step = math.sqrt(12.0) * quantisation_bias_rms_mm(step_mm, dither_sd_mm(step_mm, None, within_sd_mm))
+    groups = [np.asarray(r, float) for r in residuals_mm if len(r)]
+    pooled = float(np.median(np.abs(np.concatenate([g - np.median(g) for g in groups])))) if groups else 0.0
+    return max(effective_step, FLOOR_POOLED_MADS * pooled, FLOOR_LEAST_COUNTS * step_mm)
 
 
 def modified_z(values, floor: float, cut: float = 3.5):
@@ -147,8 +179,9 @@ def judge(values, method: str, floor: float, limit: float | None = None):
 def detectable_shift(values, method: str, step: float, limit: float | None = None) -> float | None:
     """The smallest shift of one seating from the others that the named test rejects (same units).
 
-    `values` are the seatings kept; the shifted one is one more; `limit` is the method's parameter
-    (None: its default).  Modified z: cut x max(MAD, step) / 0.6745.
+    `values` are the seatings kept; the shifted one is one more; `step` is the floor `judge` was
+    given (the session's `scale_floor`); `limit` is the method's parameter (None: its default).
+    Modified z: cut x max(MAD, step) / 0.6745.
     Grubbs and Chauvenet judge the shifted seating against a mean and SD that include it: m values with
     sum of squares S and one more D from their mean score D a / sqrt((S + D^2 a) / m), a = m / (m + 1),
     which reaches the critical z (Grubbs' G at n = m + 1; Chauvenet's z with n P(|Z| >= z) = 1/2) at
@@ -163,7 +196,7 @@ def detectable_shift(values, method: str, step: float, limit: float | None = Non
     if method == "modified-z":
         return limit * max(float(np.median(np.abs(x - np.median(x)))), step) / MAD_TO_Z
     n, a = m + 1, m / (m + 1)
-    S = max(float(np.sum((x - x.mean()) ** 2)), (m - 1) * step * step)  # the SD floored at the step
+    S = max(float(np.sum((x - x.mean()) ** 2)), (m - 1) * step * step)  # the SD floored as judge floors it
     z = _grubbs_critical(n, limit) if method == "grubbs" else float(stats.norm.isf(0.25 / n))
     room = m * a * a - z * z * a
     return z * math.sqrt(S / room) if room > 0 else None

@@ -110,7 +110,7 @@ def _analyse(seatings: list[Seating], profile: Profile, settings: AnalysisSettin
         d.phase = ph
     flats = [d for d in decisions if d.phase == FLAT]
     surf = [d for d in decisions if d.phase == SURFACE]
-    _judge_flats(flats, surf, settings, step)
+    floor = _judge_flats(decisions, flats, surf, settings, step)
 
     good_flats = [d for d in flats if d.accepted]
     summary = _base_summary(profile, settings)
@@ -135,9 +135,9 @@ def _analyse(seatings: list[Seating], profile: Profile, settings: AnalysisSettin
 
     summary["surface"] = _surface_sagittas(surf, zero, profile.indicator.sign)
     steady = [d for d in surf if d.accepted]
-    _apply(steady, outliers.judge([d.sagitta_mm for d in steady], settings.rejection, step, settings.rejection_limit))
+    _apply(steady, outliers.judge([d.sagitta_mm for d in steady], settings.rejection, floor, settings.rejection_limit))
     summary["rejection_shift_mm"] = outliers.detectable_shift(
-        [d.sagitta_mm for d in steady if d.accepted], settings.rejection, step, settings.rejection_limit)
+        [d.sagitta_mm for d in steady if d.accepted], settings.rejection, floor, settings.rejection_limit)
     good = [d for d in surf if d.accepted]
     if not good:
         summary.update(_zero_summary(zero), status="not estimable",
@@ -164,19 +164,45 @@ def _bracketed(ds: list[Decision], surf: list[Decision]) -> bool:
     return any(d.seating.t_mid_s < first for d in ds) and any(d.seating.t_mid_s > last for d in ds)
 
 
-def _judge_flats(flats: list[Decision], surf: list[Decision], settings: AnalysisSettings, step: float) -> None:
-    """Outliers on the flat, about a robust trend (Theil-Sen) when the flats bracket the surface."""
+def _within_sd_mm(ds: list[Decision]) -> float:
+    """The noise within a seating: the RMS of the seatings' own time-weighted SDs."""
+    return float(np.sqrt(np.mean([d.seating.spread_mm**2 for d in ds]))) if ds else 0.0
+
+
+def _flat_trend(steady_flats: list[Decision], surf: list[Decision]):
+    """The flats' robust trend, t_s -> mm: Theil-Sen when they bracket the surface, else their median."""
+    t = np.array([d.seating.t_mid_s for d in steady_flats])
+    x = np.array([d.seating.value_mm for d in steady_flats])
+    if surf and _bracketed(steady_flats, surf) and len(x) >= 3 and np.ptp(t) > 0:
+        slope, icpt, _, _ = stats.theilslopes(x, t)
+        return lambda ts: icpt + slope * np.asarray(ts, float)
+    return lambda ts: np.full(np.shape(ts), float(np.median(x)))
+
+
+def _residuals(ds: list[Decision], trend) -> np.ndarray:
+    """Each seating's reading less the trend at its time."""
+    t = np.array([d.seating.t_mid_s for d in ds])
+    return np.array([d.seating.value_mm for d in ds]) - trend(t)
+
+
+def _judge_flats(decisions: list[Decision], flats: list[Decision], surf: list[Decision], settings: AnalysisSettings,
+                 step: float) -> float:
+    """Outliers on the flat, about a robust trend (Theil-Sen) when the flats bracket the surface.
+
+    Returns the session's MAD floor (outliers.scale_floor) for the surface: from the noise within the
+    steady seatings and both phases about the flats' trend, pooled.  The flats are judged with it only
+    where it exceeds one count: their residuals are about a fitted line, extrapolated when the
+    bracket is uneven, and a flat wrongly thrown out bends the zero of every surface seating.
+    """
+    within = _within_sd_mm([d for d in decisions if d.accepted])
     steady = [d for d in flats if d.accepted]
     if not steady:
-        return
-    t = np.array([d.seating.t_mid_s for d in steady])
-    x = np.array([d.seating.value_mm for d in steady])
-    if surf and _bracketed(steady, surf) and len(x) >= 3 and np.ptp(t) > 0:
-        slope, icpt, _, _ = stats.theilslopes(x, t)
-        resid = x - (icpt + slope * t)
-    else:
-        resid = x - np.median(x)
-    _apply(steady, outliers.judge(resid, settings.rejection, step, settings.rejection_limit))
+        return outliers.scale_floor(step, within)
+    trend = _flat_trend(steady, surf)
+    resid = _residuals(steady, trend)
+    floor = outliers.scale_floor(step, within, [resid, _residuals([d for d in surf if d.accepted], trend)])
+    _apply(steady, outliers.judge(resid, settings.rejection, max(floor, step), settings.rejection_limit))
+    return floor
 
 
 def _surface_sagittas(surf: list[Decision], zero: Zero, sign: int) -> str:
@@ -222,7 +248,7 @@ def _result(decisions, good, good_flats, zero: Zero, zero_fit, summary: dict, pr
         return SessionResult(decisions, summary)
 
     # scatter, and each reading's quantisation bias, dithered by the scatter and the noise within seatings
-    within = float(np.sqrt(np.mean([d.seating.spread_mm**2 for d in good + good_flats])))
+    within = _within_sd_mm(good + good_flats)
     comps = reading_components(step, sd, n, zero_scatter_mm=flat_sd if flat_sd is not None else sd,
                                within_sd_mm=within)
     comps.append(Component("zero on the flat", u_zero, 1.0, zero.dof, "A", "t" if math.isfinite(zero.dof) else "normal"))
