@@ -19,6 +19,7 @@ from logger.analysis.seating import _COMPACT_AT, REPEAT_MEMORY_S, SEATED, Seatin
 STATES = (State.LIFTED, State.SETTLING, State.SEATED, State.BAD)  # samples' state codes, in this order
 _CODE = {s: i for i, s in enumerate(STATES)}
 BAD_CODE = _CODE[State.BAD]
+_STRETCH = 256  # readings `_unsettled` takes at most in one call
 
 
 def detect_block(det: SeatingDetector, t_s: np.ndarray, v_mm: np.ndarray,
@@ -40,7 +41,7 @@ def detect_block(det: SeatingDetector, t_s: np.ndarray, v_mm: np.ndarray,
             _repeats(det, tl, vl, i, j)
         elif det._t:
             j = _unsettled(det, tl, vl, i, states)
-            if j > i:  # nothing decided yet
+            if j > i and (j == n or j - i == _STRETCH):  # it stopped at the end of a stretch: nothing to decide
                 i = j
                 continue
         else:
@@ -115,7 +116,7 @@ def _unsettled(det: SeatingDetector, tl: list, vl: list, i: int, states: np.ndar
     anchor = rough_from = -1  # where the hold and the rough rest last started afresh (-1: before i)
     codes = []
     k = i
-    for t, x in zip(tl[i:i + 256], vl[i:i + 256]):  # a longer stretch comes back here
+    for t, x in zip(tl[i:i + _STRETCH], vl[i:i + _STRETCH]):  # a longer stretch comes back here
         rep = t if x == last_v else last_rep
         if t - rep > REPEAT_MEMORY_S:
             break
