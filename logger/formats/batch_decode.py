@@ -29,6 +29,8 @@ from logger.formats.recording import _unescape_bytes
 
 _MAX_TIME = 16  # bytes of a time field decoded here; longer ones go the careful way
 _ZERO, _NINE, _DOT = 48, 57, 46
+_WORD = np.dtype("<u8")
+_LOW_BYTES = np.array([(1 << (8 * k)) - 1 for k in range(9)], _WORD)  # a word's first k bytes (little-endian)
 _MIX = np.uint64(0x9E3779B97F4A7C15)  # an odd 64-bit multiplier (2**64 over the golden ratio) to mix words
 _PRINTABLE = bytes(range(0x20, 0x7F)) + b"\t\n"  # what a record may hold besides its TAB and LF
 
@@ -86,35 +88,33 @@ def decode_block(data: bytes, parse: Callable[[bytes], tuple]) -> DecodedBlock |
     return DecodedBlock(t_s, time_text, reused, codes, texts, values)
 
 
-def _padded(arr: np.ndarray, at: np.ndarray, length: np.ndarray, width: int) -> np.ndarray:
-    """The bytes arr[at[i]:at[i] + length[i]] of every row i, zero-padded to `width` columns (no NUL is printable)."""
-    tail = np.zeros(width, np.uint8)
-    windows = np.lib.stride_tricks.sliding_window_view(np.concatenate((arr, tail)), width)
-    rows = windows[at]
-    rows[np.arange(width) >= length[:, None]] = 0
-    return rows
-
-
 def _distinct(arr: np.ndarray, at: np.ndarray, length: np.ndarray) -> tuple[np.ndarray, np.ndarray] | None:
     """Which distinct byte string each row is (codes) and the first row of each; None in the rare doubt.
 
-    The strings are zero-padded to whole 8-byte words and hashed to one
-    word each; rows are grouped by hash (one sort of one word a row), then
-    every row is compared with its group's first row, so two rows share a
-    code exactly when their bytes are equal.  Two different strings with one hash (never seen; a
-    block has a few hundred distinct lines) give None: the caller then
-    decodes that block line by line.
+    Each string arr[at:at + length] is read as whole 8-byte words (the
+    bytes past its end masked to NUL, which no record holds) and hashed to
+    one word; rows are grouped by hash (one sort of one word a row), then
+    every row is compared with its group's first row, word by word, so two
+    rows share a code exactly when their bytes are equal.  Two different
+    strings with one hash (never seen; a block has a few hundred distinct
+    lines) give None: the caller then decodes that block line by line.
     """
-    width = max(8, -(-int(length.max()) // 8) * 8)
-    words = _padded(arr, at, length, width).view(np.uint64)
-    key = words[:, 0].copy()
-    for col in words.T[1:]:
+    n_words = max(1, -(-int(length.max()) // 8))
+    buffer = np.concatenate((arr, np.zeros(8 * n_words, np.uint8)))
+    as_words = np.ndarray((len(buffer) - 7,), _WORD, buffer, strides=(1,))  # a word at every byte offset
+    words = []
+    for k in range(n_words):
+        kept = np.clip(length - 8 * k, 0, 8)
+        words.append(as_words[at + 8 * k] & _LOW_BYTES[kept])
+    key = words[0].copy()
+    for w in words[1:]:
         key *= _MIX
-        key ^= col
+        key ^= w
     kinds, codes = unique_inverse(key)
     firsts = np.full(len(kinds), len(key), np.int64)
     np.minimum.at(firsts, codes, np.arange(len(key)))
-    if not np.array_equal(words, words[firsts[codes]]):
+    first_of = firsts[codes]
+    if not all(np.array_equal(w, w[first_of]) for w in words):
         return None
     return codes, firsts
 
