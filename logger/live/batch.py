@@ -46,11 +46,14 @@ def _feed_block(block, pipeline: Pipeline, writer: RunWriter) -> None:
     decoder = pipeline.decoder
     decoder.good += n_good
     decoder.bad += len(good) - n_good
-    states = (~good).astype("int8") * BAD_CODE
-    seats = (good * 0 - 1).astype("int64")
-    if n_good:
-        states[good], seats[good] = detect_block(pipeline.detector, block.t_s[good], block.values_mm()[good],
-                                                 pipeline.seatings)
+    if n_good == len(good):  # the usual block: every line a reading
+        states, seats = detect_block(pipeline.detector, block.t_s, block.values_mm(), pipeline.seatings)
+    else:
+        states = (~good).astype("int8") * BAD_CODE
+        seats = (good * 0 - 1).astype("int64")
+        if n_good:
+            states[good], seats[good] = detect_block(pipeline.detector, block.t_s[good], block.values_mm()[good],
+                                                     pipeline.seatings)
     pipeline.last_t_s = float(block.t_s[-1])
     pipeline._state = pipeline.detector.state  # as Pipeline.line leaves it (no listener here hears states)
     writer.sample_block(block_rows(block, pipeline.start_wall + block.t_s, states, seats))
