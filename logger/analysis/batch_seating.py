@@ -3,11 +3,14 @@
 The SeatingDetector (logger.analysis.seating) stays the one definition of a
 seating.  Most readings change nothing in it: while seated, a reading that
 stays within `lift_mm` of the running centre is only kept; while the spindle
-rests at its stop, a reading within the band of it is only watched.  Those
-stretches are found and taken in bulk here, changing the detector's state
-exactly as reading them one by one would (the same float operations in the
-same order, the same compaction points); every other reading, which may
-start, end or move a seating, goes through `SeatingDetector.feed` itself.
+rests at its stop, a reading within the band of it is only watched; while
+the instrument is neither, a reading only grows a hold or restarts it.
+Those stretches are taken in bulk here (numpy for the rest, tight loops for
+the recurrences), changing the detector's state exactly as reading them
+one by one would (the same float operations in the same order, the same
+compaction points); each reading that decides something (a hold complete,
+a lift, the rough-rest watch firing, a stream gone quiet) goes through
+`SeatingDetector.feed` itself.
 """
 
 from __future__ import annotations

@@ -12,9 +12,10 @@ incremental reader, which also raises its errors at the right line.
 
 Times: a time written as the recorder writes it (1 to 9 digits, a dot, 6
 digits) is the integer M of its digits over 10**6, which IEEE division rounds
-correctly, so it is the double `float()` gives; and with at most 15
-significant digits its text is exactly what `seconds_text` makes of that
-double (DBL_DIG), so samples.csv can reuse the recording's own bytes.
+correctly, so it is the double `float()` gives; and with at most 14
+significant digits (15 bytes) its text is exactly what `seconds_text` makes
+of that double (DBL_DIG is 15), so samples.csv can reuse the recording's own
+bytes.
 """
 
 from __future__ import annotations
