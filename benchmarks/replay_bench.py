@@ -29,7 +29,8 @@ N_SEATINGS = 2500  # 4 s per seating at 100 Hz: about 1,000,000 lines
 LENGTHS = (250_000, 500_000, 1_000_000)
 
 _CHILD = """
-import resource, sys
+import sys
+from benchmarks.peak import peak_kb
 from logger.cli.options import run_settings_from
 from logger.config.profile import load_profile
 from logger.live.replay import replay_file
@@ -37,7 +38,7 @@ p = load_profile(sys.argv[2])
 kw = dict(label="", rejection="modified-z", z_cut=3.5, alpha=None, flat_first=None, phase_gap=None, max_spread=None,
           settle=None, band=None, lift=None, target_radius=None, focal_length=None, focal_ratio=None, diameter=None)
 s = replay_file(sys.argv[1], p, run_settings_from(p, kw), sys.argv[3])
-print(s["lines"], resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)
+print(s["lines"], peak_kb())
 """
 
 

@@ -18,7 +18,8 @@ ROOT = Path(__file__).resolve().parents[1]
 N_HISTORY = 200
 
 _LOAD = """
-import resource, sys, time
+import sys, time
+from benchmarks.peak import peak_kb
 import pandas as pd
 t = time.perf_counter()
 if sys.argv[1] == "read_csv":
@@ -26,14 +27,15 @@ if sys.argv[1] == "read_csv":
 else:
     from logger import load_run
     df = load_run(sys.argv[2]).samples
-print(time.perf_counter() - t, resource.getrusage(resource.RUSAGE_SELF).ru_maxrss, len(df))
+print(time.perf_counter() - t, peak_kb(), len(df))
 """
 
 _REPORT = """
-import resource, sys
+import sys
+from benchmarks.peak import peak_kb
 from logger.reports.report import write_report
 write_report(sys.argv[1])
-print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)
+print(peak_kb())
 """
 
 
