@@ -64,7 +64,8 @@ def _read_table(path: Path, columns: tuple[Column, ...], categories: tuple[str, 
     `categories`: text columns that repeat a few values over many rows
     (samples.csv's `raw` and `state`), kept as pandas categoricals of the
     text, parsed straight into categories: a fraction of the memory and
-    time of a column of strings.  `lead_time`: the first column is a time
+    time of a column of strings (read again as text in the rare file where
+    every value of such a column looks like a number).  `lead_time`: the first column is a time
     (samples.csv), taken from the file's bytes in one numpy conversion
     when every row has it as the writer writes it (`_leading_times`), at a
     fraction of the cost of a CSV column.
@@ -78,6 +79,10 @@ def _read_table(path: Path, columns: tuple[Column, ...], categories: tuple[str, 
             raise UserError(f"{path}: missing column(s) {', '.join(missing)}")
         rest = [c.name for c in columns[1:]] if lead_time else None
         df = pd.read_csv(path, dtype=dtype, usecols=rest, keep_default_na=False, na_values=[""], engine="c")
+        for name in categories:  # read_csv infers the categories' type: "01" and "1" would both be 1
+            if not pd.api.types.is_string_dtype(df[name].cat.categories):
+                df[name] = pd.read_csv(path, usecols=[name], dtype=str, keep_default_na=False, na_values=[""],
+                                       engine="c")[name].astype("category")
         if lead_time:
             times = _leading_times(path, len(df))
             if times is None:  # written some other way: the column read as any other
