@@ -229,8 +229,8 @@ class SeatingDetector:
 
     def _hold_reached(self) -> None:
         self._ct, self._cv = [], []  # a hold, either way: the rough-rest watch starts afresh after it
-        held = float(np.mean(self._v))
         self._sum = sum(self._v)
+        held = self._sum / len(self._v)  # the hold's mean (numpy's would cost more than the rest of the seating's start)
         if self.sign * held - self._most_out < self.s.lift_mm:
             # reached by running out (or nothing seen before it): the spindle at its stop
             self._resting = True
