@@ -131,6 +131,21 @@ class SeatingDetector:
             # an on-change stream gone quiet: the value is holding (at the stop: still lifted)
             self.state = SETTLING if self.sign * self._v[0] - self._most_out >= self._lift else LIFTED
 
+    def next_change_s(self, t_s: float) -> float | None:
+        """Seconds from t_s until `advance` could next change something with no new reading; None: never.
+
+        For an on-change stream holding a value: when the hold becomes a
+        seating by time, or the stream counts as gone quiet.  A capture that
+        nothing reaches sleeps this long, not a fixed short time.
+        """
+        if self.state == SEATED or self._resting or not self._t:
+            return None
+        due = self._t[0] + self.s.settle_s
+        quiet = self._t[-1] + 0.25 * self.s.settle_s
+        if quiet > t_s:  # still ahead (once passed, it has been applied)
+            due = min(due, quiet)
+        return max(due, self._last_repeat_t + REPEAT_MEMORY_S) - t_s
+
     def feed(self, t_s: float, value_mm: float) -> Seating | None:
         """One reading; returns a Seating when this reading ended one.  (The hot path: kept lean.)"""
         self._last_t = t_s

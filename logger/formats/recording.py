@@ -84,6 +84,7 @@ class RecWriter:
         except OSError as exc:
             raise cannot_write(self.path, exc) from None
         self.records = 0
+        self.pending = True  # written but not yet flushed to disk (the header, so far)
         self._error = UserError(f"{self.path}: the recording is already closed")
         self._f.write(f"{MAGIC}\n# start_utc: {iso_utc(start_wall)}\n")
         items = dict(header or {})
@@ -96,6 +97,7 @@ class RecWriter:
             self._f.write(text)
         except (OSError, ValueError) as exc:  # ValueError: closed after an earlier failure
             self._fail(exc)
+        self.pending = True
 
     def _fail(self, exc: Exception):
         """A write failed (disk full, read-only): close at once, keep what is on disk, one-line error."""
@@ -128,6 +130,7 @@ class RecWriter:
             os.fsync(self._f.fileno())
         except (OSError, ValueError) as exc:
             self._fail(exc)
+        self.pending = False
 
     def close(self) -> None:
         if not self._f.closed:

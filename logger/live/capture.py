@@ -13,6 +13,7 @@ Exit status: 0 normal end, 2 a user error, 3 the device never appeared.
 from __future__ import annotations
 
 import contextlib
+import os
 import signal
 import time
 from pathlib import Path
@@ -30,6 +31,7 @@ from logger.run.writer import RunWriter, prepare_folder
 from logger.transport.serial_source import SerialSource
 
 REC_FLUSH_S = 0.5  # stream.rec to disk at least this often (samples.csv: run.writer.FLUSH_EVERY_S)
+IDLE_WAIT_S = 1.0  # the longest a capture sleeps when nothing arrives and nothing falls due
 
 
 class NeverAppeared(UserError):
@@ -39,18 +41,37 @@ class NeverAppeared(UserError):
 
 
 class Stop:
-    """Set by SIGINT/SIGTERM; the loop checks it between blocks."""
+    """Set by SIGINT/SIGTERM (or `requested = True` from another thread); the loop checks it between blocks.
+
+    Setting it also writes a byte to `wake_fd`, and so does a signal (the
+    interpreter's wakeup fd): a capture asleep on an idle port wakes at once.
+    """
 
     def __init__(self):
-        self.requested = False
+        self._requested = False
+        self.wake_fd, self._poke_fd = os.pipe()
+        os.set_blocking(self.wake_fd, False)
+        os.set_blocking(self._poke_fd, False)
+
+    @property
+    def requested(self) -> bool:
+        return self._requested
+
+    @requested.setter
+    def requested(self, value: bool) -> None:
+        self._requested = bool(value)
+        if value:
+            with contextlib.suppress(OSError):  # full: a wake-up is already waiting
+                os.write(self._poke_fd, b"!")
 
     def __call__(self, signum, frame):
-        self.requested = True
+        self._requested = True  # the signal itself has already written to wake_fd
 
     @classmethod
     def on_signals(cls) -> "Stop":
         """A Stop that Ctrl-C (SIGINT) and SIGTERM set: every command that captures ends the same way."""
         stop = cls()
+        signal.set_wakeup_fd(stop._poke_fd, warn_on_full_buffer=False)
         signal.signal(signal.SIGTERM, stop)
         signal.signal(signal.SIGINT, stop)
         return stop
@@ -113,11 +134,12 @@ def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | P
     rec = RecWriter(out / RECORDING_FILE, start_wall, {**src.settings(), "profile": profile.source})
     splitter = LineSplitter()
     last_rec_flush = t0
+    wait_s = src.read_timeout_s
     pipeline.device_state(State.LIFTED)
     try:
         while not stop.requested:
             try:
-                chunk = src.read_block()
+                chunk = src.read_block(wait_s, stop.wake_fd)
             except DeviceGone:
                 gap_start = clock()
                 for raw in splitter.flush():  # a half line before the cut is still a received line
@@ -135,18 +157,30 @@ def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | P
             if chunk:
                 for raw in splitter.feed(chunk):
                     _take(rec, pipeline, now, raw)
+                wait_s = src.read_timeout_s  # while lines flow, the next arrives soon: nothing more to work out
             pipeline.tick(now)
             mono = time.monotonic()
-            if mono - last_rec_flush >= REC_FLUSH_S:
+            if rec.pending and mono - last_rec_flush >= REC_FLUSH_S:
                 rec.flush()
                 last_rec_flush = mono
             if duration_s is not None and now >= duration_s:
                 break
             if surface_seatings is not None and pipeline.result.summary.get("seatings_surface", 0) >= surface_seatings:
                 break
+            if not chunk:
+                rec_due_s = REC_FLUSH_S - (mono - last_rec_flush) if rec.pending else None
+                wait_s = _quiet_wait(pipeline, src, now, rec_due_s, duration_s)
     finally:
         summary = _wind_up(splitter, rec, pipeline, src, clock())
     return summary
+
+
+def _quiet_wait(pipeline: Pipeline, src: SerialSource, now: float, rec_due_s: float | None,
+                duration_s: float | None) -> float:
+    """Nothing came: sleep until the soonest thing due (a tick someone needs, a poll, the recording's flush, the end)."""
+    waits = [IDLE_WAIT_S, pipeline.next_tick_in_s(now), src.next_poll_in_s(), rec_due_s,
+             None if duration_s is None else duration_s - now]
+    return max(0.001, min(w for w in waits if w is not None))
 
 
 def _wind_up(splitter, rec, pipeline, src, end: float) -> dict:

@@ -55,7 +55,15 @@ class Listener:
         """The device was gone from t_start_s to t_end_s."""
 
     def tick(self, t_s: float) -> None:
-        """Time passed (called once per block read, or about ten times a second when idle)."""
+        """Time passed (called once per block read, and when nothing arrives as `next_tick_in_s` asks)."""
+
+    def next_tick_in_s(self) -> float | None:
+        """How soon this listener needs a `tick` if nothing arrives (seconds); None: it needs none.
+
+        A capture that nothing reaches sleeps until the soonest of these (at
+        most a second), so an idle capture costs next to nothing.
+        """
+        return None
 
     def end(self, summary: dict) -> None:
         """The run is over: close files, stop threads.  Called once, even after an error."""

@@ -72,6 +72,7 @@ class LivePanel(RunStatus):
         self.console = console or Console()
         self._live = Live(self._render(), console=self.console, refresh_per_second=4, transient=False)
         self._last_draw = 0.0
+        self._drawn: tuple = ()  # what the last drawing showed (see _shown)
 
     def __enter__(self):
         self._live.__enter__()
@@ -89,12 +90,23 @@ class LivePanel(RunStatus):
         if time.monotonic() - self._last_draw >= REDRAW_EVERY_S:
             self._draw()
 
+    def next_tick_in_s(self) -> float | None:
+        """Something new to show: a redraw when it is due; nothing new: no tick needed."""
+        if self._shown() == self._drawn:
+            return None
+        return max(0.0, REDRAW_EVERY_S - (time.monotonic() - self._last_draw))
+
+    def _shown(self) -> tuple:
+        """What the panel shows comes from these."""
+        return self.current, self.value_mm, self.summary, self.last_event
+
     def end(self, summary: dict) -> None:
         self.summary = summary
         self._draw()
 
     def _draw(self) -> None:
         self._last_draw = time.monotonic()
+        self._drawn = self._shown()
         self._live.update(self._render())
 
     def _render(self):

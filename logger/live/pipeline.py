@@ -99,6 +99,14 @@ class Pipeline:
         for lst in self.listeners:
             lst.tick(t_s)
 
+    def next_tick_in_s(self, t_s: float) -> float | None:
+        """How soon a `tick` is needed if nothing arrives: the detector's and every listener's need; None: none."""
+        waits = [w for w in (lst.next_tick_in_s() for lst in self.listeners) if w is not None]
+        due = self.detector.next_change_s(t_s)
+        if due is not None:
+            waits.append(due)
+        return min(waits, default=None)
+
     def device_state(self, state: State) -> None:
         """The capture's own state (waiting for device, or back to lifted): told to every listener."""
         self._state = state

@@ -104,6 +104,7 @@ class RunWriter(Listener):
         self._error = UserError(f"{self.dir / SAMPLES_FILE}: already closed")
         self._samples.write(",".join(SAMPLE_COLUMNS) + "\n")
         self._last_flush = time.monotonic()
+        self._unflushed = True  # rows (or the header) not yet handed to the kernel
         self._closed = False
 
     def _open(self, name: str):
@@ -118,6 +119,7 @@ class RunWriter(Listener):
         row = sample_head(iso_utc(t_wall), t_s) + sample_tail(text, value_mm, state, seating)
         rows = self._rows
         rows.append(row)
+        self._unflushed = True
         if len(rows) >= 4096:
             self._write_rows()
 
@@ -157,12 +159,19 @@ class RunWriter(Listener):
             self.flush()
             self._last_flush = now
 
+    def next_tick_in_s(self) -> float | None:
+        """Rows waiting: a tick by the time they are due on disk; none waiting: no tick needed."""
+        if not self._unflushed:
+            return None
+        return max(0.0, FLUSH_EVERY_S - (time.monotonic() - self._last_flush))
+
     def flush(self) -> None:
         self._write_rows()
         try:
             self._samples.flush()
         except (OSError, ValueError) as exc:
             self._fail(exc)
+        self._unflushed = False
 
     def published(self, result, summary: dict) -> None:
         """seatings.csv and summary.json replaced, samples.csv flushed: the folder is complete at every seating."""

@@ -65,15 +65,18 @@ class SerialSource:
             raise err from None
         self._next_poll = time.monotonic()
 
-    def read_block(self) -> bytes:
-        """What arrived within the read timeout, all of it in one read.
+    def read_block(self, wait_s: float | None = None, wake_fd: int | None = None) -> bytes:
+        """What arrived within `wait_s` (default: the read timeout), all of it in one read.
 
         A port with a file descriptor (a device path, a pty) is read with one
         select and one os.read: the fewest system calls and the least Python
-        per wake-up at an indicator's 100 lines/s.  Other pyserial ports
-        (socket://, rfc2217://, loop://) through pyserial's read.  Reads never
-        wait for more once bytes are there: a device that is unplugged right
-        after a line would take the unread bytes with it.
+        per wake-up at an indicator's 100 lines/s.  There the wait may be
+        long (an idle capture sleeps), and bytes on `wake_fd` (a stop asked
+        for) end it at once; they are drained.  Other pyserial ports
+        (socket://, rfc2217://, loop://) are read through pyserial's read,
+        with the read timeout the port was opened with.  Reads never wait for
+        more once bytes are there: a device that is unplugged right after a
+        line would take the unread bytes with it.
         """
         ser = self._ser
         if ser is None:
@@ -85,7 +88,9 @@ class SerialSource:
                     ser.write(self.poll_command)
                     self._next_poll = max(self._next_poll + self.poll_interval_s, now)
             fd = getattr(ser, "fd", None)
-            return self._read_fd(fd) if isinstance(fd, int) else self._read_pyserial(ser)
+            if not isinstance(fd, int):
+                return self._read_pyserial(ser)
+            return self._read_fd(fd, self.read_timeout_s if wait_s is None else wait_s, wake_fd)
         except (serial.SerialException, OSError) as exc:
             raise DeviceGone(f"{self.url}: device or link gone ({exc})") from None
 
@@ -101,13 +106,26 @@ class SerialSource:
                 pass  # gone right after: these bytes are kept, the next read reports it
         return data
 
-    def _read_fd(self, fd: int) -> bytes:
-        if not select.select([fd], [], [], self.read_timeout_s)[0]:
+    @staticmethod
+    def _read_fd(fd: int, wait_s: float, wake_fd: int | None) -> bytes:
+        ready = select.select([fd] if wake_fd is None else [fd, wake_fd], [], [], wait_s)[0]
+        if wake_fd is not None and wake_fd in ready:
+            try:
+                os.read(wake_fd, 512)
+            except BlockingIOError:
+                pass
+        if fd not in ready:
             return b""
         data = os.read(fd, READ_BYTES)
         if not data:  # readable but empty: the device went away (as pyserial reports it)
             raise serial.SerialException("device reports readiness to read but returned no data")
         return data
+
+    def next_poll_in_s(self) -> float | None:
+        """Seconds until the next request is due (a polled indicator); None when nothing is polled."""
+        if self.poll_command is None or self._ser is None:
+            return None
+        return max(0.0, self._next_poll - time.monotonic())
 
     def close(self) -> None:
         ser, self._ser = self._ser, None

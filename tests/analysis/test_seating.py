@@ -14,7 +14,8 @@ import numpy as np
 from hypothesis import example, given, settings, strategies as st
 from scipy import stats
 
-from logger.analysis.seating import DetectorSettings, SeatingDetector, _average, _median, robust_centre
+from logger.analysis.seating import (REPEAT_MEMORY_S, DetectorSettings, SeatingDetector, _average, _median,
+                                    robust_centre)
 
 STEP = 0.001
 
@@ -110,6 +111,36 @@ def test_on_change_silence_means_the_value_holds():
     assert det.state == "seated"
     s = det.feed(4.0, -1.5)
     assert s is not None and math.isclose(s.value_mm, 0.2) and s.t_end_s == 4.0
+
+
+def test_an_idle_capture_wakes_when_time_alone_changes_the_state():
+    # An on-change indicator held still sends nothing; the capture then sleeps for next_change_s.
+    # Just before that time `advance` changes nothing, just after it does: the hold becomes
+    # "settling" (gone quiet), then "seated" (held the settle time).  Seated: no time is due.
+    det = SeatingDetector(DetectorSettings.for_step(STEP))
+    det.feed(0.0, -1.5)
+    det.feed(1.0, 0.2)
+    t, seen = 1.0, []
+    while det.state != "seated" and len(seen) < 5:
+        wait = det.next_change_s(t)
+        assert wait is not None and wait > 0
+        before = det.state
+        det.advance(t + wait - 1e-6)
+        assert det.state == before
+        t += wait + 1e-9
+        det.advance(t)
+        seen.append(det.state)
+    assert seen == ["settling", "seated"]
+    assert det.next_change_s(t) is None
+
+
+def test_a_continuous_stream_is_not_woken_by_time_until_its_repeats_are_forgotten():
+    # a stream that repeats values holds by its samples; silence counts only after REPEAT_MEMORY_S
+    det = SeatingDetector(DetectorSettings.for_step(STEP))
+    for i in range(5):
+        det.feed(i * 0.01, 0.2)  # repeats: continuous
+    wait = det.next_change_s(0.04)
+    assert wait is not None and wait >= REPEAT_MEMORY_S - 0.04 - 1e-9
 
 
 def test_robust_centre_against_numpy_weighted_average():

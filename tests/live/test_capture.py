@@ -16,11 +16,15 @@ import re
 import signal
 import subprocess
 import sys
+import threading
 import time
+import tty
 
 import pandas as pd
 
 from tests.helpers.paths import EXAMPLE_PROFILE, ROOT
+import logger.live.capture as capture_module
+from logger.config.profile import load_profile
 from logger.live.capture import Stop, capture
 from logger.live.listener import Listener
 from logger.live.plainlog import PlainLog
@@ -58,7 +62,7 @@ class UntilServed(Listener):
 
     def tick(self, t_s: float) -> None:
         self.quiet_ticks = self.quiet_ticks + 1 if self.server.wait(0) else 0
-        if self.quiet_ticks >= 2:  # a whole read (50 ms timeout) after the end brought no line
+        if self.quiet_ticks >= 2:  # a whole read (a timeout, or an idle wait) after the end brought no line
             self.stop.requested = True
 
 
@@ -220,6 +224,93 @@ def test_the_poll_request_is_decoded_from_the_scenario():
     # no `poll`: a streaming indicator (no request); with it, backslash escapes decoded as on the command line
     assert short_session().scenario.poll_request == b""
     assert short_session(poll="?\\r").scenario.poll_request == b"?\r"
+
+
+def _idle_pty():
+    """A raw-mode pty that sends nothing: (master, slave, the device path)."""
+    master, slave = os.openpty()
+    tty.setraw(slave)
+    return master, slave, os.ttyname(slave)
+
+
+def test_a_stop_from_another_thread_wakes_an_idle_capture(tmp_path, monkeypatch):
+    # nothing arrives and nothing falls due: the capture sleeps (here up to an hour); a stop asked
+    # for from another thread must end it at once, not at the end of the sleep
+    monkeypatch.setattr(capture_module, "IDLE_WAIT_S", 3600.0)
+    master, slave, path = _idle_pty()
+    profile = load_profile(EXAMPLE_PROFILE)
+    stop, out = Stop(), tmp_path / "idle"
+    done = []
+    worker = threading.Thread(target=lambda: done.append(capture(path, profile, settings_for(profile), out, stop=stop,
+                                                                 wait_s=5)), daemon=True)
+    try:
+        worker.start()
+        wait_until(lambda: (out / "stream.rec").exists(), 30)
+        time.sleep(1.5)  # past the first flushes: asleep on the idle wait
+        stop.requested = True
+        worker.join(30)
+        assert not worker.is_alive() and done and done[0]["lines"] == 0
+    finally:
+        os.close(master)
+        os.close(slave)
+
+
+def test_sigterm_wakes_an_idle_capture_process(tmp_path):
+    # the same through a real process and a real signal: the interpreter's wakeup fd ends the sleep
+    master, slave, path = _idle_pty()
+    out = tmp_path / "idle"
+    code = ("import sys, logger.live.capture as c; c.IDLE_WAIT_S = 3600.0; from logger.cli.main import main; "
+            "sys.argv[0] = 'saglog'; main()")
+    env = dict(os.environ, PYTHONPATH=str(ROOT))
+    proc = subprocess.Popen([sys.executable, "-c", code, "capture", "--port", path, "--profile", str(EXAMPLE_PROFILE),
+                             "--out", str(out), "--no-bells", "--view", "plain"],
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env)
+    try:
+        wait_until(lambda: (out / "stream.rec").exists() or proc.poll() is not None, 60)
+        time.sleep(1.5)
+        proc.send_signal(signal.SIGTERM)
+        stdout, stderr = proc.communicate(timeout=30)
+        assert proc.returncode == 0, stderr
+        assert json.loads((out / "summary.json").read_text())["lines"] == 0
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+        os.close(master)
+        os.close(slave)
+
+
+def test_listeners_ask_for_a_tick_only_while_something_waits(tmp_path):
+    # what lets an idle capture sleep: nothing unwritten, undrawn or unsent -> no tick asked for;
+    # something waiting -> a tick within that listener's own interval
+    from rich.console import Console
+
+    from logger.analysis.seating import State
+    from logger.live.listener import Sample
+    from logger.live.panel import REDRAW_EVERY_S, LivePanel
+    from logger.run.writer import FLUSH_EVERY_S, RunWriter
+
+    writer = RunWriter(tmp_path, 0.0, {})
+    assert 0 <= writer.next_tick_in_s() <= FLUSH_EVERY_S  # the header, not yet flushed
+    writer.flush()
+    assert writer.next_tick_in_s() is None
+    writer.sample(Sample(0.0, 0.0, b"+0.100", "+0.100", 0.1, "mm", State.LIFTED, None))
+    assert 0 <= writer.next_tick_in_s() <= FLUSH_EVERY_S
+    writer.close()
+    panel = LivePanel("mm", console=Console(file=io.StringIO(), width=80))
+    panel._draw()
+    assert panel.next_tick_in_s() is None
+    panel.sample(Sample(0.0, 0.0, b"+0.100", "+0.100", 0.1, "mm", State.LIFTED, None))
+    assert 0 <= panel.next_tick_in_s() <= REDRAW_EVERY_S
+    panel._draw()
+    assert panel.next_tick_in_s() is None
+
+
+def wait_until(cond, timeout_s: float) -> None:
+    """A bound, not a timing: until cond() or the time is up (then the test fails)."""
+    deadline = time.monotonic() + timeout_s
+    while not cond():
+        assert time.monotonic() < deadline, "timed out"
+        time.sleep(0.02)
 
 
 def test_a_device_that_never_appeared_leaves_no_empty_run_folder(tmp_path):

@@ -67,6 +67,15 @@ class StandPage(Listener):
         self._push()
         self.server.stop()
 
+    def next_tick_in_s(self) -> float | None:
+        """An event or a new reading not yet sent: a tick when it may go; nothing new: no tick needed."""
+        since = time.monotonic() - self._sent_at
+        if self._dirty:
+            return max(0.0, EVENT_GAP_S - since)
+        if self._reading_mm != self._sent_reading_mm:
+            return max(0.0, READING_EVERY_S - since)
+        return None
+
     def _maybe_push(self) -> None:
         since = time.monotonic() - self._sent_at
         if (self._dirty and since >= EVENT_GAP_S) or (
