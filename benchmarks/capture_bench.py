@@ -10,7 +10,8 @@ nothing else) runs over the same kind of pty at the same rates, as the
 ceiling for any reader in Python, and at 100 lines/s beside the capture,
 as the floor of its CPU: one wake-up per arrival.  Beside both, `cat`
 reading the same kind of port (rawcopy --compiled) is the floor without an
-interpreter.  CPU time is the scheduler's, in ns (cpu_seconds).
+interpreter.  CPU time is the scheduler's, in ns (cpu_seconds).  An idle capture (a
+device that sends nothing) is measured too: its CPU per second and wake-ups.
 """
 
 from __future__ import annotations
@@ -37,6 +38,7 @@ RATES = (1_000, 2_000, 5_000, 10_000, 20_000, 50_000)
 RATE_S = 3.0
 CPU_RATE, CPU_S, CPU_ROUNDS = 100.0, 20.0, 2
 LATENCY_SEATINGS = 10
+IDLE_S = 10.0
 ENV = dict(os.environ, PYTHONPATH=str(ROOT) + os.pathsep + os.environ.get("PYTHONPATH", ""))
 
 
@@ -161,6 +163,22 @@ def cpu_per_1000(tmp: Path, reader: str, k: int = 0) -> float:
     return (c1 - c0) / pacer.sent * 1000
 
 
+def idle_cost(tmp: Path) -> tuple[float, float]:
+    """(ms CPU per s, wake-ups per s) of a capture whose device sends nothing, over IDLE_S."""
+    dev = PtyDevice(tmp / "tty-idle")
+    try:
+        proc = start_capture(dev, tmp / "cap-idle")
+        ps = psutil.Process(proc.pid)
+        time.sleep(1.0)  # past the first flushes
+        c0, w0 = cpu_seconds(ps), ps.num_ctx_switches().voluntary
+        time.sleep(IDLE_S)
+        c1, w1 = cpu_seconds(ps), ps.num_ctx_switches().voluntary
+        stop(proc)
+    finally:
+        dev.close()
+    return (c1 - c0) / IDLE_S * 1000, (w1 - w0) / IDLE_S
+
+
 def latency(tmp: Path) -> list[float]:
     """Seconds from writing the line that ends a seating (the lift) to summary.json counting it."""
     stream = session(LATENCY_SEATINGS, rate_hz=100.0, seated_s=1.6, lifted_s=0.5, seed=5)
@@ -230,6 +248,12 @@ def run(tmp: Path) -> list[dict]:
                         value=round(compiled, 5), unit="CPU s per 1000 lines",
                         text=f"{compiled:.4f} CPU s per 1000 lines ({rounds})",
                         goal="(reference: the floor for one wake-up a line, no interpreter)", met=True))
+    idle_ms, idle_wakes = idle_cost(tmp)
+    print(f"capture: idle {idle_ms:.2f} ms CPU per s, {idle_wakes:.1f} wake-ups per s", flush=True)
+    figures.append(dict(name="idle capture (the device sends nothing)", value=round(idle_ms, 3),
+                        unit="ms CPU per s", text=f"{idle_ms:.2f} ms CPU per s ({idle_ms / 10:.3f} % of one core), "
+                                                  f"{idle_wakes:.1f} wake-ups per s",
+                        goal="< 1 ms CPU per s", met=idle_ms < 1.0))
     delays = sorted(latency(tmp))
     med, worst = delays[len(delays) // 2], delays[-1]
     print(f"capture: lift -> summary.json latency median {med * 1000:.1f} ms, max {worst * 1000:.1f} ms", flush=True)
