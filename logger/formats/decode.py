@@ -83,6 +83,16 @@ class LineSplitter:
         self._skip_lf = False
         if not chunk:
             return []
+        if not self._tail and not self._discarding and len(chunk) <= self.max_line and chunk[-1:] == b"\n":
+            # The usual read of a live capture: a few whole lines, each ended by LF or by CR LF.  Split at
+            # the LFs (a CR stays in its line, as below); no line can be over-long in a chunk this short.
+            crs = chunk.count(b"\r")
+            if not crs or crs == chunk.count(b"\r\n") == chunk.count(b"\n"):
+                out = chunk.split(b"\n")
+                out.pop()
+                self.bytes_in_lines += len(chunk)
+                self.lines_out += len(out)
+                return out
         data = self._tail + chunk if self._tail else chunk
         out: list[bytes] = []
         pos = 0
