@@ -13,8 +13,8 @@ Exit status: 0 normal end, 2 a user error, 3 the device never appeared.
 from __future__ import annotations
 
 import contextlib
-import os
 import signal
+import socket
 import time
 from pathlib import Path
 from typing import Sequence
@@ -45,13 +45,15 @@ class Stop:
 
     Setting it also writes a byte to `wake_fd`, and so does a signal (the
     interpreter's wakeup fd): a capture asleep on an idle port wakes at once.
+    A socket pair, not a pipe: on Windows the wakeup fd must be a socket.
     """
 
     def __init__(self):
         self._requested = False
-        self.wake_fd, self._poke_fd = os.pipe()
-        os.set_blocking(self.wake_fd, False)
-        os.set_blocking(self._poke_fd, False)
+        self._wake, self._poke = socket.socketpair()
+        self._wake.setblocking(False)
+        self._poke.setblocking(False)
+        self.wake_fd = self._wake.fileno()
 
     @property
     def requested(self) -> bool:
@@ -62,7 +64,7 @@ class Stop:
         self._requested = bool(value)
         if value:
             with contextlib.suppress(OSError):  # full: a wake-up is already waiting
-                os.write(self._poke_fd, b"!")
+                self._poke.send(b"!")
 
     def __call__(self, signum, frame):
         self._requested = True  # the signal itself has already written to wake_fd
@@ -71,7 +73,7 @@ class Stop:
     def on_signals(cls) -> "Stop":
         """A Stop that Ctrl-C (SIGINT) and SIGTERM set: every command that captures ends the same way."""
         stop = cls()
-        signal.set_wakeup_fd(stop._poke_fd, warn_on_full_buffer=False)
+        signal.set_wakeup_fd(stop._poke.fileno(), warn_on_full_buffer=False)
         signal.signal(signal.SIGTERM, stop)
         signal.signal(signal.SIGINT, stop)
         return stop
