@@ -80,8 +80,8 @@ def cpu_seconds(ps: psutil.Process) -> float:
     each thread's time on a CPU in ns.
     """
     try:
-        tasks = os.listdir(f"/proc/{ps.pid}/task")
-        return sum(int(open(f"/proc/{ps.pid}/task/{t}/schedstat").read().split()[0]) for t in tasks) / 1e9
+        tasks = Path(f"/proc/{ps.pid}/task").iterdir()
+        return sum(int((t / "schedstat").read_text().split()[0]) for t in tasks) / 1e9
     except (OSError, ValueError, IndexError):
         c = ps.cpu_times()
         return c.user + c.system

@@ -23,6 +23,7 @@ import tty
 import pandas as pd
 
 from tests.helpers.paths import EXAMPLE_PROFILE, ROOT
+from tests.helpers.stand import wait_for
 import logger.live.capture as capture_module
 from logger.config.profile import load_profile
 from logger.live.capture import Stop, capture
@@ -245,7 +246,7 @@ def test_a_stop_from_another_thread_wakes_an_idle_capture(tmp_path, monkeypatch)
                                                                  wait_s=5)), daemon=True)
     try:
         worker.start()
-        wait_until(lambda: (out / "stream.rec").exists(), 30)
+        wait_for(lambda: (out / "stream.rec").exists(), 30, "the capture to start")
         time.sleep(1.5)  # past the first flushes: asleep on the idle wait
         stop.requested = True
         worker.join(30)
@@ -266,7 +267,7 @@ def test_sigterm_wakes_an_idle_capture_process(tmp_path):
                              "--out", str(out), "--no-bells", "--view", "plain"],
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env)
     try:
-        wait_until(lambda: (out / "stream.rec").exists() or proc.poll() is not None, 60)
+        wait_for(lambda: (out / "stream.rec").exists() or proc.poll() is not None, 60, "the capture to start")
         time.sleep(1.5)
         proc.send_signal(signal.SIGTERM)
         stdout, stderr = proc.communicate(timeout=30)
@@ -287,6 +288,9 @@ def test_listeners_ask_for_a_tick_only_while_something_waits(tmp_path):
     from logger.analysis.seating import State
     from logger.live.listener import Sample
     from logger.live.panel import REDRAW_EVERY_S, LivePanel
+    from logger.live.stand.address import WebAddress
+    from logger.live.stand.listener import EVENT_GAP_S, READING_EVERY_S, StandPage
+    from logger.live.stand.server import StandServer
     from logger.run.writer import FLUSH_EVERY_S, RunWriter
 
     writer = RunWriter(tmp_path, 0.0, {})
@@ -303,14 +307,13 @@ def test_listeners_ask_for_a_tick_only_while_something_waits(tmp_path):
     assert 0 <= panel.next_tick_in_s() <= REDRAW_EVERY_S
     panel._draw()
     assert panel.next_tick_in_s() is None
-
-
-def wait_until(cond, timeout_s: float) -> None:
-    """A bound, not a timing: until cond() or the time is up (then the test fails)."""
-    deadline = time.monotonic() + timeout_s
-    while not cond():
-        assert time.monotonic() < deadline, "timed out"
-        time.sleep(0.02)
+    page = StandPage(StandServer(WebAddress("127.0.0.1", 0), None))  # not started: publish only keeps the state
+    page.tick(0.0)  # the first state goes out at once
+    assert page.next_tick_in_s() is None
+    page.sample(Sample(0.0, 0.0, b"+0.100", "+0.100", 0.1, "mm", State.LIFTED, None))
+    assert 0 < page.next_tick_in_s() <= READING_EVERY_S  # the new reading waits its turn
+    page.state(State.SEATED)
+    assert 0 <= page.next_tick_in_s() <= EVENT_GAP_S  # an event goes sooner
 
 
 def test_a_device_that_never_appeared_leaves_no_empty_run_folder(tmp_path):

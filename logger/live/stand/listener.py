@@ -77,9 +77,8 @@ class StandPage(Listener):
         return None
 
     def _maybe_push(self) -> None:
-        since = time.monotonic() - self._sent_at
-        if (self._dirty and since >= EVENT_GAP_S) or (
-                self._reading_mm != self._sent_reading_mm and since >= READING_EVERY_S):
+        wait = self.next_tick_in_s()
+        if wait is not None and wait <= 0:
             self._push()
 
     def _push(self) -> None:
