@@ -26,6 +26,10 @@ from logger.live.present import result_lines
               help="Stop after N accepted surface seatings.")
 @click.option("--wait", "wait_s", type=NON_NEGATIVE, default=10.0, show_default=True,
               help="Seconds to wait for a device that is not there yet (then exit status 3).")
+@click.option("--gather", "gather_s", type=click.FloatRange(0, 1), default=0.0, show_default=True, metavar="SECONDS",
+              help="Let lines gather this long between reads (e.g. 0.1 on a small computer): far fewer wake-ups, "
+                   "each result shown up to that much later, the gathered lines' times spread evenly.  A device "
+                   "path (read meanwhile by a 'cat' child, so an unplug loses nothing) or socket:// only.")
 @view_option
 @click.option("--no-bells", is_flag=True, help="No bell cues (one ring accepted, two rejected, three zero set).")
 @click.option("--quiet", "old_quiet", is_flag=True, hidden=True)  # the earlier name of --no-bells
@@ -33,7 +37,7 @@ from logger.live.present import result_lines
 @stand_options
 @analysis_options
 def capture_cmd(port, out_dir, baudrate, bytesize, parity, stopbits, poll, poll_every, duration_s,
-                surface_seatings, wait_s, view, no_bells, old_quiet, force, web, web_key, speak, profile, run_settings):
+                surface_seatings, wait_s, gather_s, view, no_bells, old_quiet, force, web, web_key, speak, profile, run_settings):
     """Log the indicator live, notice every seating, and keep the run folder up to date.
 
     Seat on the flat first (the zero), then on the surface, and on the flat
@@ -49,7 +53,8 @@ def capture_cmd(port, out_dir, baudrate, bytesize, parity, stopbits, poll, poll_
         summary = capture(port, profile, run_settings, out_dir, baudrate=baudrate, bytesize=int(bytesize),
                           parity=parity, stopbits=float(stopbits), poll_command=poll_bytes,
                           poll_interval_s=poll_every, duration_s=duration_s, surface_seatings=surface_seatings,
-                          wait_s=wait_s, listeners=watchers, force=force, stop=stop)
+                          wait_s=wait_s, listeners=watchers, force=force, stop=stop,
+                          gather_s=gather_s)
     for line in result_lines(summary):
         click.echo(line)
     click.echo(f"run folder: {out_dir}")

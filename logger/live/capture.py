@@ -13,6 +13,9 @@ Exit status: 0 normal end, 2 a user error, 3 the device never appeared.
 from __future__ import annotations
 
 import contextlib
+import math
+import os
+import select
 import signal
 import socket
 import time
@@ -32,6 +35,26 @@ from logger.transport.serial_source import SerialSource
 
 REC_FLUSH_S = 0.5  # stream.rec to disk at least this often (samples.csv: run.writer.FLUSH_EVERY_S)
 IDLE_WAIT_S = 1.0  # the longest a capture sleeps when nothing arrives and nothing falls due
+GATHER_BYTES = 1024  # --gather: lines are let gather only after a read smaller than this (a fast stream is read at once)
+
+
+def can_gather(port: str) -> bool:
+    """Whether lines may wait between reads without an unplug taking them: a device path read through
+    the relay (POSIX), or a socket:// bridge (the bytes wait in TCP's buffers)."""
+    return port.lower().startswith("socket://") or (os.name == "posix" and "://" not in port)
+
+
+def spread_times(t_from_s: float, t_to_s: float, n: int) -> list[float]:
+    """Times for n lines that gathered between two reads: evenly after `t_from_s`, the last at `t_to_s`.
+
+    Nobody saw when each arrived; for a stream sending at a steady rate
+    this is where they were, and no time is off by more than the gather.
+    To the microsecond, as stream.rec keeps times.
+    """
+    if n == 0:
+        return []
+    step = (t_to_s - t_from_s) / n
+    return [round(t_from_s + step * (k + 1), 6) for k in range(n - 1)] + [t_to_s]
 
 
 class NeverAppeared(UserError):
@@ -43,9 +66,10 @@ class NeverAppeared(UserError):
 class Stop:
     """Set by SIGINT/SIGTERM (or `requested = True` from another thread); the loop checks it between blocks.
 
-    Setting it also writes a byte to `wake_fd`, and so does a signal (the
-    interpreter's wakeup fd): a capture asleep on an idle port wakes at once.
-    A socket pair, not a pipe: on Windows the wakeup fd must be a socket.
+    Setting it also makes the stop readable (`fileno()`), and so does a
+    signal (the interpreter's wakeup fd): a capture asleep on an idle port,
+    or letting lines gather, wakes at once.  A socket pair, not a pipe: on
+    Windows the wakeup fd must be a socket.
     """
 
     def __init__(self):
@@ -53,7 +77,19 @@ class Stop:
         self._wake, self._poke = socket.socketpair()
         self._wake.setblocking(False)
         self._poke.setblocking(False)
-        self.wake_fd = self._wake.fileno()
+
+    def fileno(self) -> int:
+        """Readable once a stop is asked for (or a signal came): for select, beside the port."""
+        return self._wake.fileno()
+
+    def drain(self) -> None:
+        with contextlib.suppress(OSError):  # empty: another reader drained it
+            self._wake.recv(512)
+
+    def sleep(self, s: float) -> None:
+        """Up to `s` seconds, less when a stop is asked for (or a signal comes) meanwhile."""
+        if s > 0 and not self._requested and select.select([self._wake], [], [], s)[0]:
+            self.drain()
 
     @property
     def requested(self) -> bool:
@@ -67,7 +103,7 @@ class Stop:
                 self._poke.send(b"!")
 
     def __call__(self, signum, frame):
-        self._requested = True  # the signal itself has already written to wake_fd
+        self._requested = True  # the signal itself has already made the stop readable
 
     @classmethod
     def on_signals(cls) -> "Stop":
@@ -77,6 +113,23 @@ class Stop:
         signal.signal(signal.SIGTERM, stop)
         signal.signal(signal.SIGINT, stop)
         return stop
+
+
+def _open_first(src: SerialSource, wait_s: float, stop: Stop, listeners: Sequence[Listener],
+                made: Path | None) -> None:
+    """Open the port at the start, waiting for it; a run folder `made` for this run is removed if it never came."""
+
+    def waiting():  # before the run exists, only the watchers hear that the device is not there yet
+        for lst in listeners:
+            lst.state(State.WAITING)
+
+    try:
+        _open_with_wait(src, wait_s, stop, waiting)
+    except UserError:
+        if made is not None:
+            with contextlib.suppress(OSError):
+                made.rmdir()  # nothing was received: leave no empty run folder behind
+        raise
 
 
 def _open_with_wait(src: SerialSource, wait_s: float, stop: Stop, on_wait) -> None:
@@ -99,28 +152,22 @@ def _open_with_wait(src: SerialSource, wait_s: float, stop: Stop, on_wait) -> No
 def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | Path, *, baudrate=9600,
             bytesize=8, parity="N", stopbits=1, poll_command: bytes | None = None, poll_interval_s=0.5,
             duration_s: float | None = None, surface_seatings: int | None = None, wait_s: float = 10.0,
-            listeners: Sequence[Listener] = (), force: bool = False, stop: Stop | None = None) -> dict:
+            listeners: Sequence[Listener] = (), force: bool = False, stop: Stop | None = None,
+            gather_s: float = 0.0) -> dict:
     """Capture into `out_dir` until the duration, the seating count or a stop signal; return the summary.
 
     `listeners` (views, bells, the stand page ...) hear the run after the run-folder writer.
+    `gather_s` > 0: after a small read, let lines gather this long before the next (fewer wake-ups,
+    less CPU on a small computer; each line is seen up to that much later, its time spread).
     """
+    if gather_s and not can_gather(str(port)):
+        raise UserError(f"--gather works with a device path (Linux, macOS) or a socket:// bridge, not {port}")
     stop = stop or Stop()
     fresh = not Path(out_dir).exists()
     out = prepare_folder(out_dir, force)
     src = SerialSource(port, baudrate=baudrate, bytesize=bytesize, parity=parity, stopbits=stopbits,
-                       poll_command=poll_command, poll_interval_s=poll_interval_s)
-
-    def waiting():  # before the run exists, only the watchers hear that the device is not there yet
-        for lst in listeners:
-            lst.state(State.WAITING)
-
-    try:
-        _open_with_wait(src, wait_s, stop, waiting)
-    except UserError:
-        if fresh:
-            with contextlib.suppress(OSError):
-                out.rmdir()  # nothing was received: leave no empty run folder behind
-        raise
+                       poll_command=poll_command, poll_interval_s=poll_interval_s, relay=gather_s > 0)
+    _open_first(src, wait_s, stop, listeners, out if fresh else None)
     t0 = time.monotonic()
     start_wall = round(time.time(), 6)  # as the recording header states it
 
@@ -137,28 +184,23 @@ def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | P
     splitter = LineSplitter()
     last_rec_flush = t0
     wait_s = src.read_timeout_s
+    gathered_since = None  # after a gather: the time of the read before it
     pipeline.device_state(State.LIFTED)
     try:
         while not stop.requested:
+            since, gathered_since = gathered_since, None
             try:
-                chunk = src.read_block(wait_s, stop.wake_fd)
+                chunk = src.read_block(wait_s if since is None else 0.0, stop)
             except DeviceGone:
-                gap_start = clock()
-                for raw in splitter.flush():  # a half line before the cut is still a received line
-                    _take(rec, pipeline, gap_start, raw)
-                pipeline.device_state(State.WAITING)
-                _reconnect(src, stop, deadline)
-                gap_end = clock()
-                rec.comment(gap_comment(gap_start, gap_end))
-                pipeline.gap(gap_start, gap_end)
-                if not src.is_open:
+                if not _ride_out_gap(src, splitter, rec, pipeline, stop, deadline, clock):
                     break  # stopped or out of time while waiting
-                pipeline.device_state(State.LIFTED)
                 continue
             now = clock()
             if chunk:
-                for raw in splitter.feed(chunk):
-                    _take(rec, pipeline, now, raw)
+                lines = splitter.feed(chunk)
+                times = [now] * len(lines) if since is None else spread_times(since, now, len(lines))
+                for t_s, raw in zip(times, lines):
+                    _take(rec, pipeline, t_s, raw)
                 wait_s = src.read_timeout_s  # while lines flow, the next arrives soon: nothing more to work out
             pipeline.tick(now)
             mono = time.monotonic()
@@ -172,6 +214,9 @@ def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | P
             if not chunk:
                 rec_due_s = REC_FLUSH_S - (mono - last_rec_flush) if rec.pending else None
                 wait_s = _quiet_wait(pipeline, src, now, rec_due_s, duration_s)
+            elif gather_s and len(chunk) < GATHER_BYTES:  # a slow stream: let the next lines gather
+                stop.sleep(min(now + gather_s, duration_s or math.inf) - clock())
+                gathered_since = now
     finally:
         summary = _wind_up(splitter, rec, pipeline, src, clock())
     return summary
@@ -212,6 +257,21 @@ def _take(rec: RecWriter, pipeline: Pipeline, t_s: float, raw: bytes) -> None:
     text = escape(raw)
     rec.write_text(t_s, text)
     pipeline.line(t_s, raw, text)
+
+
+def _ride_out_gap(src, splitter, rec, pipeline, stop, deadline, clock) -> bool:
+    """The device went away: keep what came, show "waiting for device", reopen the same path; True once back."""
+    gap_start = clock()
+    for raw in splitter.flush():  # a half line before the cut is still a received line
+        _take(rec, pipeline, gap_start, raw)
+    pipeline.device_state(State.WAITING)
+    _reconnect(src, stop, deadline)
+    gap_end = clock()
+    rec.comment(gap_comment(gap_start, gap_end))
+    pipeline.gap(gap_start, gap_end)
+    if src.is_open:
+        pipeline.device_state(State.LIFTED)
+    return src.is_open
 
 
 def _reconnect(src: SerialSource, stop: Stop, deadline: float | None) -> None:

@@ -13,6 +13,8 @@ from __future__ import annotations
 import errno
 import os
 import select
+import shutil
+import subprocess
 import time
 from urllib.parse import parse_qs, urlsplit
 
@@ -35,7 +37,7 @@ class SerialSource:
 
     def __init__(self, url: str, baudrate=9600, bytesize=8, parity="N", stopbits=1,
                  poll_command: bytes | None = None, poll_interval_s: float = 0.5,
-                 read_timeout_s: float = 0.05):
+                 read_timeout_s: float = 0.05, relay: bool = False):
         self.url = str(url)
         self.baudrate = _check_int(baudrate, "baud rate", 1)
         self.bytesize = _check_choice(_as_number(bytesize, "byte size"), BYTESIZES, "byte size")
@@ -46,7 +48,10 @@ class SerialSource:
             raise UserError(f"poll interval must be positive, got {poll_interval_s!r}")
         self.poll_interval_s = float(poll_interval_s)
         self.read_timeout_s = float(read_timeout_s)
+        self.relay = relay  # a device path is read through a relay child (see _start_relay)
         self._ser = None
+        self._socket = False
+        self._relay = None
         self._next_poll = 0.0
 
     def open(self) -> None:
@@ -63,40 +68,84 @@ class SerialSource:
             err = DeviceNotFound(open_error_message(self.url, exc))
             err.absent = _absent(exc)
             raise err from None
+        # a socket:// bridge is read without pyserial's timeout: select first, then all that is there
+        self._socket = self.url.lower().startswith("socket://")
+        if self._socket:
+            self._ser.timeout = 0
+        if self.relay and isinstance(getattr(self._ser, "fd", None), int):
+            self._start_relay(self._ser.fd)
         self._next_poll = time.monotonic()
 
-    def read_block(self, wait_s: float | None = None, wake_fd: int | None = None) -> bytes:
-        """What arrived within `wait_s` (default: the read timeout), all of it in one read.
+    def _start_relay(self, fd: int) -> None:
+        """`cat` reads the port the moment bytes arrive and holds them in a pipe, where an unplug cannot take them.
 
-        A port with a file descriptor (a device path, a pty) is read with one
-        select and one os.read: the fewest system calls and the least Python
-        per wake-up at an indicator's 100 lines/s.  There the wait may be
-        long (an idle capture sleeps), and bytes on `wake_fd` (a stop asked
-        for) end it at once; they are drained.  Other pyserial ports
-        (socket://, rfc2217://, loop://) are read through pyserial's read,
-        with the read timeout the port was opened with.  Reads never wait for
-        more once bytes are there: a device that is unplugged right after a
-        line would take the unread bytes with it.
+        A capture that lets lines gather (--gather) does not read for a
+        while; bytes left in a tty's own queue meanwhile are lost when the
+        device hangs up (a pty's other end closed, a USB adapter pulled),
+        bytes in a pipe are not.  The pipe ends when the relay's read fails:
+        the device is gone.  A compiled reader costs a fraction of a Python
+        wake-up per arrival, so the interpreter wakes once per gather.
+        """
+        cat = shutil.which("cat")
+        if cat is None:
+            self.close()
+            raise UserError("--gather needs the 'cat' program on this computer (it reads the port in the meantime)")
+        import termios  # POSIX only, as are ports with a file descriptor
+
+        # pyserial opens the port non-blocking with VMIN 0 (its reads wait in select); the relay's read
+        # must wait for the first byte and return with what is there: blocking, VMIN 1, VTIME 0
+        attrs = termios.tcgetattr(fd)
+        attrs[6][termios.VMIN], attrs[6][termios.VTIME] = 1, 0
+        termios.tcsetattr(fd, termios.TCSANOW, attrs)
+        os.set_blocking(fd, True)
+        # its own session: a Ctrl-C at the terminal (SIGINT to the whole foreground group) ends the capture,
+        # which then ends the relay; the relay dying first would look like an unplug
+        self._relay = subprocess.Popen([cat], stdin=fd, stdout=subprocess.PIPE, stderr=subprocess.DEVNULL, bufsize=0,
+                                       start_new_session=True)
+
+    def read_block(self, wait_s: float | None = None, wake=None) -> bytes:
+        """What arrived within `wait_s` (default: the read timeout), all of it in one read; 0: only what is there.
+
+        A port with a file descriptor (a device path, a pty) and a socket://
+        bridge are read with one select and one read: the fewest system calls
+        and the least Python per wake-up at an indicator's 100 lines/s.
+        There the wait may be long (an idle capture sleeps), and `wake` (a
+        capture's Stop: `fileno()` and `drain()`) ends it at once.  Other
+        pyserial ports (COM ports, rfc2217://, loop://) are read through
+        pyserial's read, with the read timeout the port was opened with.
+        Reads never wait for more once bytes are there: a device that is
+        unplugged right after a line would take the unread bytes with it.
         """
         ser = self._ser
         if ser is None:
             raise DeviceGone(f"{self.url}: not open")
+        wait_s = self.read_timeout_s if wait_s is None else wait_s
         try:
             if self.poll_command is not None:
                 now = time.monotonic()
                 if now >= self._next_poll:
                     ser.write(self.poll_command)
                     self._next_poll = max(self._next_poll + self.poll_interval_s, now)
-            fd = getattr(ser, "fd", None)
+            if self._socket:
+                return ser.read(READ_BYTES) if _ready(ser.fileno(), wait_s, wake) else b""
+            fd = getattr(ser, "fd", None) if self._relay is None else self._relay.stdout.fileno()
             if not isinstance(fd, int):
-                return self._read_pyserial(ser)
-            return self._read_fd(fd, self.read_timeout_s if wait_s is None else wait_s, wake_fd)
+                return self._read_pyserial(ser, wait_s)
+            if not _ready(fd, wait_s, wake):
+                return b""
+            data = os.read(fd, READ_BYTES)
+            if not data:  # readable but empty: the device went away (as pyserial reports it), or the relay ended
+                raise serial.SerialException("device reports readiness to read but returned no data")
+            return data
         except (serial.SerialException, OSError) as exc:
             raise DeviceGone(f"{self.url}: device or link gone ({exc})") from None
 
     @staticmethod
-    def _read_pyserial(ser) -> bytes:
-        data = ser.read(ser.in_waiting or 1)
+    def _read_pyserial(ser, wait_s: float) -> bytes:
+        waiting = ser.in_waiting
+        if not waiting and wait_s == 0:
+            return b""
+        data = ser.read(waiting or 1)
         if len(data) == 1:  # woke on the first byte: the rest of the burst too
             try:
                 more = ser.in_waiting
@@ -106,21 +155,6 @@ class SerialSource:
                 pass  # gone right after: these bytes are kept, the next read reports it
         return data
 
-    @staticmethod
-    def _read_fd(fd: int, wait_s: float, wake_fd: int | None) -> bytes:
-        ready = select.select([fd] if wake_fd is None else [fd, wake_fd], [], [], wait_s)[0]
-        if wake_fd is not None and wake_fd in ready:
-            try:
-                os.read(wake_fd, 512)
-            except BlockingIOError:
-                pass
-        if fd not in ready:
-            return b""
-        data = os.read(fd, READ_BYTES)
-        if not data:  # readable but empty: the device went away (as pyserial reports it)
-            raise serial.SerialException("device reports readiness to read but returned no data")
-        return data
-
     def next_poll_in_s(self) -> float | None:
         """Seconds until the next request is due (a polled indicator); None when nothing is polled."""
         if self.poll_command is None or self._ser is None:
@@ -128,6 +162,11 @@ class SerialSource:
         return max(0.0, self._next_poll - time.monotonic())
 
     def close(self) -> None:
+        relay, self._relay = self._relay, None
+        if relay is not None:
+            relay.terminate()
+            relay.stdout.close()
+            relay.wait()
         ser, self._ser = self._ser, None
         if ser is not None:
             try:
@@ -153,6 +192,14 @@ class SerialSource:
 
     def __exit__(self, *exc):
         self.close()
+
+
+def _ready(fd: int, wait_s: float, wake) -> bool:
+    """Whether `fd` has bytes within `wait_s`; `wake` readable ends the wait early (and is drained)."""
+    ready = select.select([fd] if wake is None else [fd, wake], [], [], wait_s)[0]
+    if wake is not None and wake in ready:
+        wake.drain()
+    return fd in ready
 
 
 def pyserial_url(url: str) -> str:

@@ -9,6 +9,7 @@ import socket
 import subprocess
 import sys
 import threading
+import time
 from pathlib import Path
 
 import pytest
@@ -125,6 +126,71 @@ def test_poll_command_is_sent_over_a_socket():
     th.join(2)
     lst.close()
     assert bytes(received).startswith(b"?\r?\r?\r") and got.startswith(b"+0.125\r\n" * 3)
+
+
+def test_socket_bridge_burst_comes_in_one_read_and_a_stop_wakes_the_wait():
+    # a socket:// bridge is read like a device path: one select, then all that is there (pyserial's
+    # own read of an in_waiting of 1 took two bytes a call); a readable stop ends a long wait
+    lst = socket.socket()
+    lst.bind(("127.0.0.1", 0))
+    lst.listen(1)
+    burst = b"".join(b"+%d.%03d\r\n" % (k // 1000, k % 1000) for k in range(500))  # 5000 bytes
+    src = SerialSource(f"socket://127.0.0.1:{lst.getsockname()[1]}")
+    src.open()
+    conn, _ = lst.accept()
+    try:
+        conn.sendall(burst)
+        got, reads = b"", 0
+        while len(got) < len(burst) and reads < 50:
+            got += src.read_block(5.0)
+            reads += 1
+        assert got == burst and reads <= 3, reads  # loopback may cut a burst into a few segments
+        assert src.read_block(0.0) == b""  # 0: only what is there, no wait
+
+        class Woken:  # what a capture's Stop gives the read: readable at once
+            def __init__(self):
+                self.a, self.b = socket.socketpair()
+                self.b.send(b"!")
+                self.drained = False
+
+            def fileno(self):
+                return self.a.fileno()
+
+            def drain(self):
+                self.a.recv(16)
+                self.drained = True
+
+        wake = Woken()
+        assert src.read_block(3600.0, wake) == b"" and wake.drained
+    finally:
+        src.close()
+        conn.close()
+        lst.close()
+
+
+def test_the_relay_keeps_lines_a_gathering_reader_has_not_read_when_the_device_hangs_up():
+    # A tty's hang-up empties its own input queue (Linux tty layer: a pty master closed behaves
+    # like a USB adapter pulled).  Lines written just before it, while the reader was not looking
+    # (a capture letting lines gather), must still be read: the relay has taken them already.
+    master, slave = os.openpty()
+    path = os.ttyname(slave)
+    src = SerialSource(path, relay=True)
+    src.open()
+    os.close(slave)  # no handle of ours on the slave: the master's close hangs the line up
+    assert src.read_block(0.3) == b""  # a quiet line is not a gone device: the relay waits for bytes
+    # and a Ctrl-C at the terminal (SIGINT to the foreground process group) does not reach it
+    assert os.getpgid(src._relay.pid) != os.getpgid(0)
+    sent = b"".join(b"+1.%03d\r\n" % k for k in range(40))
+    os.write(master, sent)
+    time.sleep(0.2)  # the relay reads at once; this reader does not (a gather)
+    os.close(master)
+    time.sleep(0.2)
+    got = b""
+    with pytest.raises(DeviceGone):
+        for _ in range(100):
+            got += src.read_block(1.0)
+    src.close()
+    assert got == sent
 
 
 def test_vanished_pty_raises_device_gone():

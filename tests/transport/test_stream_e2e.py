@@ -16,7 +16,10 @@ import os
 import signal
 import subprocess
 import sys
+import time
 from pathlib import Path
+
+import pytest
 
 from logger.formats.decode import Decoder, LineSplitter
 from logger.errors import DeviceGone, DeviceNotFound
@@ -49,7 +52,8 @@ def expected(run):
 
 def check_values(run, got):
     d1, d2 = Decoder(), Decoder()
-    assert [d1.decode(x, 0, 0).value_mm for x in got] == [d2.decode(x, 0, 0).value_mm for x in expected(run)]
+    sent = expected(run)[-len(got):]
+    assert [d1.decode(x, 0, 0).value_mm for x in got] == [d2.decode(x, 0, 0).value_mm for x in sent]
     assert d1.bad == 0 and d1.good == len(got) > 4000
 
 
@@ -69,21 +73,30 @@ def test_socket_1khz_lossless_in_order():
     server.start()
     got = receive_all(server, server.url)
     server.stop()
-    assert got == expected(run) and server.lines_dropped == 0
+    # The server starts at the connection; pyserial's socket:// open ends by discarding what has
+    # arrived by then (its reset_input_buffer: a clean start), so on a busy machine the first few
+    # lines may go.  From the first line read on, nothing may be lost: the whole rest, in order.
+    sent = expected(run)
+    head = len(sent) - len(got)
+    assert 0 <= head < 100 and got == sent[head:] and server.lines_dropped == 0
     check_values(run, got)
 
 
-def test_unplug_and_replug_through_a_link(tmp_path):
+@pytest.mark.parametrize("gather_s", [0.0, 0.1])
+def test_unplug_and_replug_through_a_link(tmp_path, gather_s):
+    # gather_s > 0: the reader looks only every gather_s, as `capture --gather` does, and reads
+    # through the relay; the lines just before the unplug must still all arrive
     run = simulate(load_scenario("unplugged"))  # gone from 9 s to 12 s of a 33 s session
     link = str(tmp_path / "ttyIndicator")
     server = PtyServer(run, speed=8.0, link_path=link)
     server.start()
     sp, before = LineSplitter(), []
-    src = SerialSource(link)
+    src = SerialSource(link, relay=gather_s > 0)
     src.open()
     try:
         while True:
             before += sp.feed(src.read_block())
+            time.sleep(gather_s)
     except DeviceGone:
         src.close()
     while True:  # the capture's job, done by hand here: retry until the device is back
