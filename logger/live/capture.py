@@ -215,7 +215,9 @@ def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | P
                 rec_due_s = REC_FLUSH_S - (mono - last_rec_flush) if rec.pending else None
                 wait_s = _quiet_wait(pipeline, src, now, rec_due_s, duration_s)
             elif gather_s and len(chunk) < GATHER_BYTES:  # a slow stream: let the next lines gather
-                stop.sleep(min(now + gather_s, duration_s or math.inf) - clock())
+                poll_in_s = src.next_poll_in_s()  # a polled indicator is still asked on time
+                wake_at = min(now + gather_s, duration_s or math.inf, math.inf if poll_in_s is None else now + poll_in_s)
+                stop.sleep(wake_at - clock())
                 gathered_since = now
     finally:
         summary = _wind_up(splitter, rec, pipeline, src, clock())

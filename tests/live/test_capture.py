@@ -270,15 +270,18 @@ def test_bad_port_url_is_a_user_error(tmp_path):
     assert proc.returncode == 2 and stderr.count("\n") == 1 and "Traceback" not in stderr
 
 
-def test_an_indicator_that_answers_only_when_asked(tmp_path):
-    # a polled indicator (common practice for some models): nothing comes unless the logger asks
+@pytest.mark.parametrize("gather_s", [0.0, 0.2])
+def test_an_indicator_that_answers_only_when_asked(tmp_path, gather_s):
+    # a polled indicator (common practice for some models): nothing comes unless the logger asks;
+    # a gathering capture still asks on time (it wakes for the next request)
     run = short_session(rate_hz=100.0, poll="?\\r")
     profile = run.scenario.profile
     stop = Stop()
     with PtyServer(run) as server:
         summary = capture(server.path, profile, settings_for(profile), tmp_path / "p", stop=stop, wait_s=5,
                           listeners=[PlainLog(profile.unit, io.StringIO()), UntilServed(server, stop)],
-                          duration_s=run.duration_s + 120.0, poll_command=b"?\r", poll_interval_s=0.05)
+                          duration_s=run.duration_s + 120.0, poll_command=b"?\r", poll_interval_s=0.05,
+                          gather_s=gather_s)
         answers = server.lines_sent  # the indicator sends a line only in answer to a request
     c = run.truth["counts"]
     assert (summary["seatings_flat"], summary["seatings_surface"]) == (c["expected_accepted_flat"],
