@@ -14,7 +14,6 @@ from __future__ import annotations
 
 import contextlib
 import math
-import os
 import select
 import signal
 import socket
@@ -31,17 +30,11 @@ from logger.live.listener import Listener
 from logger.live.pipeline import Pipeline, RunSettings
 from logger.run.columns import RECORDING_FILE
 from logger.run.writer import RunWriter, prepare_folder
-from logger.transport.serial_source import SerialSource
+from logger.transport.serial_source import SerialSource, can_gather
 
 REC_FLUSH_S = 0.5  # stream.rec to disk at least this often (samples.csv: run.writer.FLUSH_EVERY_S)
 IDLE_WAIT_S = 1.0  # the longest a capture sleeps when nothing arrives and nothing falls due
 GATHER_BYTES = 1024  # --gather: lines are let gather only after a read smaller than this (a fast stream is read at once)
-
-
-def can_gather(port: str) -> bool:
-    """Whether lines may wait between reads without an unplug taking them: a device path read through
-    the relay (POSIX), or a socket:// bridge (the bytes wait in TCP's buffers)."""
-    return port.lower().startswith("socket://") or (os.name == "posix" and "://" not in port)
 
 
 def spread_times(t_from_s: float, t_to_s: float, n: int) -> list[float]:
@@ -197,10 +190,7 @@ def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | P
                 continue
             now = clock()
             if chunk:
-                lines = splitter.feed(chunk)
-                times = [now] * len(lines) if since is None else spread_times(since, now, len(lines))
-                for t_s, raw in zip(times, lines):
-                    _take(rec, pipeline, t_s, raw)
+                _take_chunk(splitter, rec, pipeline, chunk, since, now)
                 wait_s = src.read_timeout_s  # while lines flow, the next arrives soon: nothing more to work out
             pipeline.tick(now)
             mono = time.monotonic()
@@ -219,6 +209,7 @@ def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | P
                 wake_at = min(now + gather_s, duration_s or math.inf, math.inf if poll_in_s is None else now + poll_in_s)
                 stop.sleep(wake_at - clock())
                 gathered_since = now
+        _take_the_rest(src, splitter, rec, pipeline, gathered_since, clock)
     finally:
         summary = _wind_up(splitter, rec, pipeline, src, clock())
     return summary
@@ -252,6 +243,34 @@ def _wind_up(splitter, rec, pipeline, src, end: float) -> dict:
     if first is not None:
         raise first
     return summary
+
+
+def _take_chunk(splitter: LineSplitter, rec: RecWriter, pipeline: Pipeline, chunk: bytes, since: float | None,
+                now: float) -> None:
+    """One read's lines, at the read's time, or (after a gather since `since`) spread up to it."""
+    lines = splitter.feed(chunk)
+    times = [now] * len(lines) if since is None else spread_times(since, now, len(lines))
+    for t_s, raw in zip(times, lines):
+        _take(rec, pipeline, t_s, raw)
+
+
+def _take_the_rest(src: SerialSource, splitter, rec, pipeline, since: float | None, clock) -> None:
+    """At a stop: what came since the last read (a gather's worth, in the relay's pipe) is taken, not left unread.
+
+    A few reads at most: a stream that keeps coming does not hold the stop up.
+    """
+    if not src.is_open:
+        return
+    for _ in range(4):
+        try:
+            chunk = src.read_block(0.0)
+        except DeviceGone:
+            return
+        if not chunk:
+            return
+        now = clock()
+        _take_chunk(splitter, rec, pipeline, chunk, since, now)
+        since = None if since is None else now
 
 
 def _take(rec: RecWriter, pipeline: Pipeline, t_s: float, raw: bytes) -> None:

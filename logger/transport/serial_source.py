@@ -69,7 +69,7 @@ class SerialSource:
             err.absent = _absent(exc)
             raise err from None
         # a socket:// bridge is read without pyserial's timeout: select first, then all that is there
-        self._socket = self.url.lower().startswith("socket://")
+        self._socket = _is_socket(self.url)
         if self._socket:
             self._ser.timeout = 0
         if self.relay and isinstance(getattr(self._ser, "fd", None), int):
@@ -94,14 +94,20 @@ class SerialSource:
 
         # pyserial opens the port non-blocking with VMIN 0 (its reads wait in select); the relay's read
         # must wait for the first byte and return with what is there: blocking, VMIN 1, VTIME 0
-        attrs = termios.tcgetattr(fd)
-        attrs[6][termios.VMIN], attrs[6][termios.VTIME] = 1, 0
-        termios.tcsetattr(fd, termios.TCSANOW, attrs)
-        os.set_blocking(fd, True)
-        # its own session: a Ctrl-C at the terminal (SIGINT to the whole foreground group) ends the capture,
-        # which then ends the relay; the relay dying first would look like an unplug
-        self._relay = subprocess.Popen([cat], stdin=fd, stdout=subprocess.PIPE, stderr=subprocess.DEVNULL, bufsize=0,
-                                       start_new_session=True)
+        try:
+            attrs = termios.tcgetattr(fd)
+            attrs[6][termios.VMIN], attrs[6][termios.VTIME] = 1, 0
+            termios.tcsetattr(fd, termios.TCSANOW, attrs)
+            os.set_blocking(fd, True)
+            # its own session: a Ctrl-C at the terminal (SIGINT to the whole foreground group) ends the
+            # capture, which then ends the relay; the relay dying first would look like an unplug
+            self._relay = subprocess.Popen([cat], stdin=fd, stdout=subprocess.PIPE, stderr=subprocess.DEVNULL,
+                                           bufsize=0, start_new_session=True)
+        except (termios.error, OSError, subprocess.SubprocessError) as exc:  # termios.error is no OSError
+            self.close()  # the port's exclusive hold released: the next try can open it
+            err = DeviceNotFound(f"{self.url}: the port opened, but its relay did not start ({exc})")
+            err.absent = True  # a device still settling after a replug: the capture tries again
+            raise err from None
 
     def read_block(self, wait_s: float | None = None, wake=None) -> bytes:
         """What arrived within `wait_s` (default: the read timeout), all of it in one read; 0: only what is there.
@@ -122,10 +128,7 @@ class SerialSource:
         wait_s = self.read_timeout_s if wait_s is None else wait_s
         try:
             if self.poll_command is not None:
-                now = time.monotonic()
-                if now >= self._next_poll:
-                    ser.write(self.poll_command)
-                    self._next_poll = max(self._next_poll + self.poll_interval_s, now)
+                self._poll(ser)
             if self._socket:
                 return ser.read(READ_BYTES) if _ready(ser.fileno(), wait_s, wake) else b""
             fd = getattr(ser, "fd", None) if self._relay is None else self._relay.stdout.fileno()
@@ -139,6 +142,19 @@ class SerialSource:
             return data
         except (serial.SerialException, OSError) as exc:
             raise DeviceGone(f"{self.url}: device or link gone ({exc})") from None
+
+    def _poll(self, ser) -> None:
+        """Send the request when it is due.  Through a relay, a failed write (the device hung up) is
+        not the end yet: the pipe still holds what came before, and its end reports the device gone."""
+        now = time.monotonic()
+        if now < self._next_poll:
+            return
+        self._next_poll = max(self._next_poll + self.poll_interval_s, now)
+        try:
+            ser.write(self.poll_command)
+        except (serial.SerialException, OSError):
+            if self._relay is None:
+                raise
 
     @staticmethod
     def _read_pyserial(ser, wait_s: float) -> bytes:
@@ -192,6 +208,16 @@ class SerialSource:
 
     def __exit__(self, *exc):
         self.close()
+
+
+def _is_socket(url: str) -> bool:
+    return url.lower().startswith("socket://")
+
+
+def can_gather(url: str) -> bool:
+    """Whether lines may wait between reads without an unplug taking them: a device path read through
+    the relay (POSIX), or a socket:// bridge (the bytes wait in TCP's buffers)."""
+    return _is_socket(url) or (os.name == "posix" and "://" not in url)
 
 
 def _ready(fd: int, wait_s: float, wake) -> bool:

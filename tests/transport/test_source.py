@@ -193,6 +193,27 @@ def test_the_relay_keeps_lines_a_gathering_reader_has_not_read_when_the_device_h
     assert got == sent
 
 
+def test_a_polled_indicator_through_the_relay_keeps_its_last_answers_at_a_hang_up():
+    # the request written before each read fails on a hung-up line; the answers already in the
+    # relay's pipe must still be read before the device counts as gone
+    master, slave = os.openpty()
+    src = SerialSource(os.ttyname(slave), relay=True, poll_command=b"?\r", poll_interval_s=0.01)
+    src.open()
+    os.close(slave)
+    sent = b"+0.125\r\n" * 5
+    os.write(master, sent)
+    time.sleep(0.2)
+    os.close(master)
+    time.sleep(0.1)
+    got = b""
+    with pytest.raises(DeviceGone):
+        for _ in range(100):
+            time.sleep(0.02)  # a request due before every read
+            got += src.read_block(1.0)
+    src.close()
+    assert got == sent
+
+
 def test_vanished_pty_raises_device_gone():
     master, slave = os.openpty()
     path = os.ttyname(slave)
