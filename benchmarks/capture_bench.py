@@ -92,6 +92,14 @@ def cpu_seconds(ps: psutil.Process) -> float:
         return c.user + c.system
 
 
+def _end(proc: subprocess.Popen | None, dev: PtyDevice) -> None:
+    """After a measurement, even a failed one: no reader left running, the pty closed."""
+    if proc is not None and proc.poll() is None:
+        proc.kill()
+        proc.wait(timeout=30)
+    dev.close()
+
+
 def stop(proc: subprocess.Popen) -> None:
     proc.send_signal(signal.SIGTERM)
     if proc.wait(60) != 0:
@@ -110,6 +118,7 @@ def one_rate(tmp: Path, lines: list[bytes], rate: int, raw: bool, *extra) -> dic
     name = f"{'raw' if raw else 'cap'}{'-gather' if extra else ''}-{rate}"
     dev = PtyDevice(tmp / f"tty-{name}")
     out = tmp / f"out-{name}"
+    proc = None
     try:
         proc = start_raw(dev) if raw else start_capture(dev, out, *extra)
         n = int(rate * RATE_S)
@@ -125,7 +134,7 @@ def one_rate(tmp: Path, lines: list[bytes], rate: int, raw: bool, *extra) -> dic
             stop(proc)
             received, samples = count_records(out)
     finally:
-        dev.close()
+        _end(proc, dev)
     kept_pace = pacer.elapsed_s <= RATE_S * 1.05 + 0.05
     return dict(rate=rate, sent=pacer.sent, received=received, samples=samples, feeder_s=round(pacer.elapsed_s, 3),
                 held=received == pacer.sent == samples and kept_pace)
@@ -149,6 +158,7 @@ def cpu_per_1000(tmp: Path, reader: str, k: int = 0) -> float:
     name = f"{reader}-{k}"
     dev = PtyDevice(tmp / f"tty-cpu-{name}")
     out = tmp / f"cpu-{name}"
+    proc = None
     try:
         if reader in ("capture", "gathering"):
             proc = start_capture(dev, out, *(GATHERING if reader == "gathering" else ()))
@@ -168,13 +178,14 @@ def cpu_per_1000(tmp: Path, reader: str, k: int = 0) -> float:
             proc.send_signal(signal.SIGTERM)
             proc.communicate(timeout=30)
     finally:
-        dev.close()
+        _end(proc, dev)
     return (c1 - c0) / pacer.sent * 1000
 
 
 def idle_cost(tmp: Path) -> tuple[float, float]:
     """(ms CPU per s, wake-ups per s) of a capture whose device sends nothing, over IDLE_S."""
     dev = PtyDevice(tmp / "tty-idle")
+    proc = None
     try:
         proc = start_capture(dev, tmp / "cap-idle")
         ps = psutil.Process(proc.pid)
@@ -184,7 +195,7 @@ def idle_cost(tmp: Path) -> tuple[float, float]:
         c1, w1 = cpu_seconds(ps), ps.num_ctx_switches().voluntary
         stop(proc)
     finally:
-        dev.close()
+        _end(proc, dev)
     return (c1 - c0) / IDLE_S * 1000, (w1 - w0) / IDLE_S
 
 
@@ -203,6 +214,7 @@ def latency(tmp: Path, *extra) -> list[float]:
             return -1
 
     delays = []
+    proc = None
     try:
         proc = start_capture(dev, out, *extra)
         start = 0
@@ -216,7 +228,7 @@ def latency(tmp: Path, *extra) -> list[float]:
             start = lift + 1
         stop(proc)
     finally:
-        dev.close()
+        _end(proc, dev)
     return delays
 
 
