@@ -37,7 +37,8 @@ from logger.live.present import result_lines
 @stand_options
 @analysis_options
 def capture_cmd(port, out_dir, baudrate, bytesize, parity, stopbits, poll, poll_every, duration_s,
-                surface_seatings, wait_s, gather_s, view, no_bells, old_quiet, force, web, web_key, speak, profile, run_settings):
+                surface_seatings, wait_s, gather_s, view, no_bells, old_quiet, force, web, web_key, speak, profile,
+                run_settings):
     """Log the indicator live, notice every seating, and keep the run folder up to date.
 
     Seat on the flat first (the zero), then on the surface, and on the flat

@@ -34,7 +34,8 @@ from logger.transport.serial_source import SerialSource, can_gather
 
 REC_FLUSH_S = 0.5  # stream.rec to disk at least this often (samples.csv: run.writer.FLUSH_EVERY_S)
 IDLE_WAIT_S = 1.0  # the longest a capture sleeps when nothing arrives and nothing falls due
-GATHER_BYTES = 1024  # --gather: lines are let gather only after a read smaller than this (a fast stream is read at once)
+# --gather: lines are let gather only after a read smaller than this (a fast stream is read at once)
+GATHER_BYTES = 1024
 
 
 def spread_times(t_from_s: float, t_to_s: float, n: int) -> list[float]:
@@ -206,7 +207,8 @@ def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | P
                 wait_s = _quiet_wait(pipeline, src, now, rec_due_s, duration_s)
             elif gather_s and len(chunk) < GATHER_BYTES:  # a slow stream: let the next lines gather
                 poll_in_s = src.next_poll_in_s()  # a polled indicator is still asked on time
-                wake_at = min(now + gather_s, duration_s or math.inf, math.inf if poll_in_s is None else now + poll_in_s)
+                poll_at = math.inf if poll_in_s is None else now + poll_in_s
+                wake_at = min(now + gather_s, duration_s or math.inf, poll_at)
                 stop.sleep(wake_at - clock())
                 gathered_since = now
         _take_the_rest(src, splitter, rec, pipeline, gathered_since, clock)
