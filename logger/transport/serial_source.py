@@ -59,18 +59,23 @@ class SerialSource:
             return
         # pyserial's rfc2217 handler refuses a write timeout (it raises at open); the others take one
         extra = {} if self.url.lower().startswith("rfc2217://") else {"write_timeout": 1.0}
+        self._socket = _is_socket(self.url)
         try:
-            self._ser = serial.serial_for_url(
+            ser = serial.serial_for_url(
                 pyserial_url(self.url), baudrate=self.baudrate, bytesize=self.bytesize, parity=PARITIES[self.parity],
-                stopbits=self.stopbits, timeout=self.read_timeout_s, exclusive=True, **extra,
+                stopbits=self.stopbits, timeout=self.read_timeout_s, exclusive=True, do_not_open=True, **extra,
             )
+            if self._socket:
+                # pyserial's socket:// open ends by throwing away what the bridge has already sent (its
+                # reset_input_buffer); a bridge that sends on connect, a backlog say, would lose it
+                ser.reset_input_buffer = _keep_input
+            ser.open()
         except (serial.SerialException, OSError, ValueError) as exc:
             err = DeviceNotFound(open_error_message(self.url, exc))
             err.absent = _absent(exc)
             raise err from None
-        # a socket:// bridge is read without pyserial's timeout: select first, then all that is there
-        self._socket = _is_socket(self.url)
-        if self._socket:
+        self._ser = ser
+        if self._socket:  # read without pyserial's timeout: select first, then all that is there
             self._ser.timeout = 0
         if self.relay and isinstance(getattr(self._ser, "fd", None), int):
             self._start_relay(self._ser.fd)
@@ -239,6 +244,10 @@ def pyserial_url(url: str) -> str:
     if parts.scheme.lower() != "rfc2217" or "ign_set_control" in parse_qs(parts.query, keep_blank_values=True):
         return url
     return url + ("&" if parts.query else "?") + "ign_set_control"
+
+
+def _keep_input() -> None:
+    """In place of pyserial's reset_input_buffer at a socket:// open: the bytes a bridge sent are the run's."""
 
 
 def open_error_message(url: str, exc: BaseException) -> str:

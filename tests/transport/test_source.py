@@ -168,6 +168,62 @@ def test_socket_bridge_burst_comes_in_one_read_and_a_stop_wakes_the_wait():
         lst.close()
 
 
+def test_what_a_bridge_sends_on_connect_is_kept():
+    # A bridge may send the moment a client connects (a backlog it kept, a first reading).  pyserial's
+    # socket:// open ends by throwing away whatever has arrived by then (its reset_input_buffer, see
+    # serial/urlhandler/protocol_socket.py).  How much arrives first is a race; on a busy computer the
+    # bridge wins it.  Here it always does: the bridge is another process, and while the client
+    # connects a second thread holds the interpreter, so that the client goes on only after the
+    # switch interval (50 ms).  Each burst must then be read whole, in order.
+    burst = b"".join(b"+%d.%03d mm\r\n" % (k // 1000, k % 1000) for k in range(300))
+    rounds = 5
+    lst = socket.create_server(("127.0.0.1", 0))
+    bridge = subprocess.Popen([sys.executable, "-c", f"""
+import socket, sys
+lst = socket.socket(fileno={lst.fileno()})
+for _ in range({rounds}):
+    conn, _ = lst.accept()
+    conn.sendall({burst!r})
+    conn.close()
+"""], pass_fds=[lst.fileno()])
+    url = f"socket://127.0.0.1:{lst.getsockname()[1]}"
+    interval = sys.getswitchinterval()
+    busy = threading.Event()
+
+    def hold_the_interpreter():
+        busy.set()
+        t_end = time.monotonic() + 0.3
+        while time.monotonic() < t_end:
+            pass
+
+    got_all, closing = [], []
+    try:
+        sys.setswitchinterval(0.05)
+        for _ in range(rounds):
+            hog = threading.Thread(target=hold_the_interpreter)
+            hog.start()
+            busy.wait()
+            src = SerialSource(url)
+            src.open()
+            hog.join()
+            got = b""
+            try:
+                while len(got) < len(burst):
+                    got += src.read_block(5.0)
+            except DeviceGone:
+                pass  # the bridge hung up after its burst
+            closing.append(threading.Thread(target=src.close))  # pyserial's socket close sleeps 0.3 s
+            closing[-1].start()
+            got_all.append(got == burst)
+    finally:
+        sys.setswitchinterval(interval)
+        for t in closing:
+            t.join()
+        bridge.wait(timeout=30)
+        lst.close()
+    assert got_all == [True] * rounds
+
+
 def test_the_relay_keeps_lines_a_gathering_reader_has_not_read_when_the_device_hangs_up():
     # A tty's hang-up empties its own input queue (Linux tty layer: a pty master closed behaves
     # like a USB adapter pulled).  Lines written just before it, while the reader was not looking
