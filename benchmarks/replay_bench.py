@@ -19,7 +19,7 @@ import time
 from pathlib import Path
 
 from logger.config.profile import load_profile
-from logger.formats.recording import RecWriter
+from logger.formats.recording import RecWriter, end_comment
 
 from .feeder import session
 
@@ -47,6 +47,7 @@ def write_recording(path: Path) -> int:
     w = RecWriter(path, 1_780_000_000.0, {"source": "invented benchmark stream"})
     for i, line in enumerate(stream.lines):
         w.write((i + 1) / 100.0, line[:-1])
+    w.comment(end_comment((len(stream.lines) + 1) / 100.0))  # as a capture's recording ends
     w.close()
     return len(stream.lines)
 

@@ -3,8 +3,10 @@
 `saglog replay` has nobody watching, so it need not tell anyone about each
 line: blocks of the common kind are decoded (logger.formats.batch_decode),
 detected (logger.analysis.batch_seating) and written (logger.run.block_rows)
-with array operations, and every other block (comments, gaps, odd lines)
-goes through `Pipeline.line` as in a capture.  Both feed the same decoder
+with array operations; comment lines (a capture's gaps and end) are cut out
+of their block and read as the incremental reader reads them, and every
+other block (odd lines) goes through `Pipeline.line` as in a capture.  Both
+feed the same decoder
 counts, detector and list of seatings, and the pipeline's `finish` analyses
 and writes the rest, so the run folder is byte-identical to the incremental
 replay's (tests/live/test_batch_replay.py).
@@ -12,6 +14,7 @@ replay's (tests/live/test_batch_replay.py).
 
 from __future__ import annotations
 
+import re
 from pathlib import Path
 from typing import Callable
 
@@ -23,6 +26,7 @@ from logger.run.block_rows import block_rows
 from logger.run.writer import RunWriter
 
 BLOCK_BYTES = 1 << 21  # about 160,000 lines of a 100 Hz recording: a few tens of MB at most in arrays
+_COMMENT_LINE = re.compile(rb"^#[^\n]*(?:\n|$)", re.MULTILINE)
 
 
 def feed_recording(p: Path, f, first: bytes | None, lineno: int, pipeline: Pipeline, writer: RunWriter,
@@ -30,13 +34,33 @@ def feed_recording(p: Path, f, first: bytes | None, lineno: int, pipeline: Pipel
     """Every record of an open recording into `pipeline`, whose only listener is `writer`."""
     with f:
         for data in record_blocks(f, first, BLOCK_BYTES):
-            block = decode_block(data, pipeline.decoder.parse)
-            if block is None:
-                for t_s, raw, text in block_records(p, data, lineno, on_comment):
-                    pipeline.line(t_s, raw, text)
-            else:
-                _feed_block(block, pipeline, writer)
-            lineno += data.count(b"\n") + (not data.endswith(b"\n"))
+            for part in _around_comments(data):
+                block = None if part[:1] == b"#" else decode_block(part, pipeline.decoder.parse)
+                if block is None:
+                    for t_s, raw, text in block_records(p, part, lineno, on_comment):
+                        pipeline.line(t_s, raw, text)
+                else:
+                    _feed_block(block, pipeline, writer)
+                lineno += part.count(b"\n") + (not part.endswith(b"\n"))
+
+
+def _around_comments(data: bytes) -> list[bytes]:
+    """A block cut into its comment lines and the runs of records between them, in order.
+
+    A capture's recording has comments among its records (every gap, and
+    the end); the records around them still go the batch way.
+    """
+    if data[:1] != b"#" and b"\n#" not in data:
+        return [data]
+    parts, pos = [], 0
+    for m in _COMMENT_LINE.finditer(data):
+        if m.start() > pos:
+            parts.append(data[pos:m.start()])
+        parts.append(m[0])
+        pos = m.end()
+    if pos < len(data):
+        parts.append(data[pos:])
+    return parts
 
 
 def _feed_block(block, pipeline: Pipeline, writer: RunWriter) -> None:

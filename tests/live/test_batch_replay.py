@@ -19,7 +19,7 @@ from hypothesis import HealthCheck, given, settings, strategies as st
 import logger.live.batch as batch
 from benchmarks.feeder import session
 from logger.errors import UserError
-from logger.formats.recording import RecWriter, gap_comment
+from logger.formats.recording import RecWriter, end_comment, gap_comment
 from logger.live.replay import replay_file
 from tests.helpers.paths import ROOT
 from tests.live.test_faults import fresh_settings, timed, write_rec
@@ -116,7 +116,10 @@ _LINE = st.one_of(
 
 @st.composite
 def streams(draw):
-    """Levels held for a while with a little noise, lifts between, odd lines here and there."""
+    """Levels held for a while with a little noise, lifts between, odd lines and gaps here and there.
+
+    (t, None) stands for a gap comment; the stream may end with the end comment a capture writes.
+    """
     t, recs = 0.0, []
     for _ in range(draw(st.integers(1, 8))):
         level = draw(st.floats(-2, 0))
@@ -133,18 +136,34 @@ def streams(draw):
             if rng.random() < 0.03:
                 recs.append((t, draw(_LINE)))
                 continue
+            if rng.random() < 0.005:
+                recs.append((t, None))  # the device was away: a gap comment among the records
             line = b"%+.3f mm\r" % (level + creep * k + rng.gauss(0, noise))
             if not (on_change and line == last):
                 recs.append((t, line))
             last = line
+    if draw(st.booleans()):
+        recs.append((t, "end"))
     return recs
+
+
+def write_drawn(path: Path, recs) -> None:
+    w = RecWriter(path, 1_780_000_000.0, {"source": "invented test stream"})
+    for t_s, raw in recs:
+        if raw is None:
+            w.comment(gap_comment(t_s, t_s + 0.5))
+        elif raw == "end":
+            w.comment(end_comment(t_s))
+        else:
+            w.write(t_s, raw)
+    w.close()
 
 
 @settings(max_examples=80, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])  # the profile is read-only
 @given(recs=streams(), block=st.sampled_from([64, 300, 1 << 22]))
 def test_batch_equals_incremental_on_drawn_streams(recs, block, tmp_path_factory, profile):
     tmp = tmp_path_factory.mktemp("drawn")
-    write_rec(tmp / "drawn.rec", recs)
+    write_drawn(tmp / "drawn.rec", recs)
     old = batch.BLOCK_BYTES
     batch.BLOCK_BYTES = block
     try:
@@ -164,3 +183,21 @@ def test_a_stream_that_stops_repeating(blocks, tmp_path, profile):
     got = both(tmp_path / "stops.rec", tmp_path, profile)
     assert_same(got)
     assert b'"seatings_total": 0' in got[True][0]["summary.json"]
+
+
+def test_records_around_a_captures_comments_still_go_the_batch_way(tmp_path, profile, monkeypatch):
+    # A capture's recording has its gaps and its end as comments; only those lines go the careful way.
+    recs = [(t_s, raw) for t_s, raw in timed(session(3, rate_hz=100, seed=2).lines)]
+    recs[400:400] = [(recs[400][0], None)]
+    recs.append((recs[-1][0], "end"))
+    write_drawn(tmp_path / "cap.rec", recs)
+    batched = []
+    feed_block = batch._feed_block
+
+    def counting(block, *args):
+        batched.append(len(block.t_s))
+        return feed_block(block, *args)
+
+    monkeypatch.setattr(batch, "_feed_block", counting)
+    replay_file(tmp_path / "cap.rec", profile, fresh_settings(profile), tmp_path / "out", force=True)
+    assert len(batched) == 2 and sum(batched) == len(recs) - 2  # before the gap, after it up to the end
