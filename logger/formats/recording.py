@@ -34,6 +34,7 @@ _BAD_TEXT = re.compile(rb"[^\x20-\x7e]")
 _BAD_BLOCK = re.compile(rb"[^\x20-\x7e\n\t]")  # the TAB after each time is expected
 _CR = "\\x0d"
 _CR_B = b"\\x0d"
+_SPACE = "\\x20"  # a space in a comment's escaped bytes
 _BLOCK = 1 << 16
 
 
@@ -159,6 +160,27 @@ def end_comment(t_s: float) -> str:
     return f"end {t_s:.6f}"
 
 
+def partial_comment(t_s: float, raw: bytes) -> str:
+    """The comment a capture writes for the tail of a line it came in on (logger.live.opening), in place of a record.
+
+    The bytes are kept, escaped as a record's are and with spaces as
+    \\x20 (a comment is read stripped and split at spaces).
+    """
+    text = escape(raw).replace(" ", _SPACE)
+    return f"partial {t_s:.6f} {text}"
+
+
+def parse_partial(text: str) -> tuple[float, bytes] | None:
+    """(t_s, raw) of a partial-line comment, None for any other comment."""
+    word, *args = text.split() or [""]
+    if word != "partial" or len(args) > 2:
+        return None
+    try:
+        return float(args[0]), unescape(args[1] if len(args) == 2 else "")
+    except (IndexError, ValueError, UserError):
+        return None
+
+
 def parse_event(text: str) -> tuple[str, list[float]] | None:
     """('gap', [t0, t1]) or ('end', [t]) for an event comment, None for any other comment."""
     word, *args = text.split() or [""]
@@ -208,10 +230,14 @@ def open_recording(path) -> tuple[dict, Path, object, bytes | None, int]:
         if not line.startswith(b"#"):
             first = line
             break
-        lineno += 1
         text = line[1:].decode("utf-8", "replace").strip()
         key, sep, value = text.partition(":")
-        if sep and key and " " not in key.strip():
+        item = sep and key and " " not in key.strip()
+        if lineno and not item:  # an event before the first record (a gap, a partial line): the records begin
+            first = line
+            break
+        lineno += 1
+        if item:
             header[key.strip()] = value.strip()
     if "start_utc" in header:
         start = parse_iso_utc(header["start_utc"])

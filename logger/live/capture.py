@@ -25,8 +25,9 @@ from logger.analysis.seating import State
 from logger.config.profile import Profile
 from logger.errors import DeviceGone, DeviceNotFound, UserError
 from logger.formats.decode import LineSplitter
-from logger.formats.recording import RecWriter, end_comment, escape, gap_comment
+from logger.formats.recording import RecWriter, end_comment, escape, gap_comment, partial_comment
 from logger.live.listener import Listener
+from logger.live.opening import FirstLine
 from logger.live.pipeline import Pipeline, RunSettings
 from logger.run.columns import RECORDING_FILE
 from logger.run.writer import RunWriter, prepare_folder
@@ -176,6 +177,7 @@ def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | P
     # last: once stream.rec exists, the folder is a complete (empty) run
     rec = RecWriter(out / RECORDING_FILE, start_wall, {**src.settings(), "profile": profile.source})
     splitter = LineSplitter()
+    opening = FirstLine(lambda raw: pipeline.decoder.parse(raw)[0] is not None)
     last_rec_flush = t0
     wait_s = src.read_timeout_s
     gathered_since = None  # after a gather: the time of the read before it
@@ -186,12 +188,12 @@ def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | P
             try:
                 chunk = src.read_block(wait_s if since is None else 0.0, stop)
             except DeviceGone:
-                if not _ride_out_gap(src, splitter, rec, pipeline, stop, deadline, clock):
+                if not _ride_out_gap(src, splitter, opening, rec, pipeline, stop, deadline, clock):
                     break  # stopped or out of time while waiting
                 continue
             now = clock()
             if chunk:
-                _take_chunk(splitter, rec, pipeline, chunk, since, now)
+                _take_chunk(splitter, opening, rec, pipeline, chunk, since, now)
                 wait_s = src.read_timeout_s  # while lines flow, the next arrives soon: nothing more to work out
             pipeline.tick(now)
             mono = time.monotonic()
@@ -211,9 +213,9 @@ def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | P
                 wake_at = min(now + gather_s, duration_s or math.inf, poll_at)
                 stop.sleep(wake_at - clock())
                 gathered_since = now
-        _take_the_rest(src, splitter, rec, pipeline, gathered_since, clock)
+        _take_the_rest(src, splitter, opening, rec, pipeline, gathered_since, clock)
     finally:
-        summary = _wind_up(splitter, rec, pipeline, src, clock())
+        summary = _wind_up(splitter, opening, rec, pipeline, src, clock())
     return summary
 
 
@@ -225,7 +227,7 @@ def _quiet_wait(pipeline: Pipeline, src: SerialSource, now: float, rec_due_s: fl
     return max(0.001, min(w for w in waits if w is not None))
 
 
-def _wind_up(splitter, rec, pipeline, src, end: float) -> dict:
+def _wind_up(splitter, opening, rec, pipeline, src, end: float) -> dict:
     """Close everything, even after a write error (disk full, read-only): every step is tried, the first error raised."""
     first = None
 
@@ -236,7 +238,7 @@ def _wind_up(splitter, rec, pipeline, src, end: float) -> dict:
         except UserError as exc:
             first = first or exc
 
-    attempt(lambda: [_take(rec, pipeline, end, raw) for raw in splitter.flush()])
+    attempt(lambda: _take_cut(splitter, opening, rec, pipeline, end))
     attempt(lambda: rec.comment(end_comment(end)))
     attempt(rec.close)
     summary = attempt(lambda: pipeline.finish(end))
@@ -247,16 +249,25 @@ def _wind_up(splitter, rec, pipeline, src, end: float) -> dict:
     return summary
 
 
-def _take_chunk(splitter: LineSplitter, rec: RecWriter, pipeline: Pipeline, chunk: bytes, since: float | None,
-                now: float) -> None:
+def _take_chunk(splitter: LineSplitter, opening: FirstLine, rec: RecWriter, pipeline: Pipeline, chunk: bytes,
+                since: float | None, now: float) -> None:
     """One read's lines, at the read's time, or (after a gather since `since`) spread up to it."""
     lines = splitter.feed(chunk)
     times = [now] * len(lines) if since is None else spread_times(since, now, len(lines))
     for t_s, raw in zip(times, lines):
+        for item in opening.lines(t_s, raw):
+            _take(rec, pipeline, *item)
+
+
+def _take_cut(splitter: LineSplitter, opening: FirstLine, rec: RecWriter, pipeline: Pipeline, t_s: float) -> None:
+    """The port closed (a gap, the end): a first line still held, then a half line before the cut, are taken."""
+    for item in opening.release():
+        _take(rec, pipeline, *item)
+    for raw in splitter.flush():  # a half line before the cut is still a received line
         _take(rec, pipeline, t_s, raw)
 
 
-def _take_the_rest(src: SerialSource, splitter, rec, pipeline, since: float | None, clock) -> None:
+def _take_the_rest(src: SerialSource, splitter, opening, rec, pipeline, since: float | None, clock) -> None:
     """At a stop: what came since the last read (a gather's worth, in the relay's pipe) is taken, not left unread.
 
     A few reads at most: a stream that keeps coming does not hold the stop up.
@@ -271,28 +282,35 @@ def _take_the_rest(src: SerialSource, splitter, rec, pipeline, since: float | No
         if not chunk:
             return
         now = clock()
-        _take_chunk(splitter, rec, pipeline, chunk, since, now)
+        _take_chunk(splitter, opening, rec, pipeline, chunk, since, now)
         since = None if since is None else now
 
 
-def _take(rec: RecWriter, pipeline: Pipeline, t_s: float, raw: bytes) -> None:
-    """One received line: into the recording and the pipeline, escaped once for both."""
+def _take(rec: RecWriter, pipeline: Pipeline, t_s: float, raw: bytes, partial: bool = False) -> None:
+    """One received line: into the recording and the pipeline, escaped once for both.
+
+    The tail of a line the port opened in (`partial`) goes into the recording as a comment, and into
+    the run as a bad line."""
+    if partial:
+        rec.comment(partial_comment(t_s, raw))
+        pipeline.partial(t_s, raw)
+        return
     text = escape(raw)
     rec.write_text(t_s, text)
     pipeline.line(t_s, raw, text)
 
 
-def _ride_out_gap(src, splitter, rec, pipeline, stop, deadline, clock) -> bool:
+def _ride_out_gap(src, splitter, opening, rec, pipeline, stop, deadline, clock) -> bool:
     """The device went away: keep what came, show "waiting for device", reopen the same path; True once back."""
     gap_start = clock()
-    for raw in splitter.flush():  # a half line before the cut is still a received line
-        _take(rec, pipeline, gap_start, raw)
+    _take_cut(splitter, opening, rec, pipeline, gap_start)
     pipeline.device_state(State.WAITING)
     _reconnect(src, stop, deadline)
     gap_end = clock()
     rec.comment(gap_comment(gap_start, gap_end))
     pipeline.gap(gap_start, gap_end)
     if src.is_open:
+        opening.opened()
         pipeline.device_state(State.LIFTED)
     return src.is_open
 

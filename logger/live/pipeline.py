@@ -92,6 +92,15 @@ class Pipeline:
             for tell in self._sample_to:
                 tell(sample)
 
+    def partial(self, t_s: float, raw: bytes) -> None:
+        """The tail of a line the port opened in (logger.live.opening): a bad line, never a reading."""
+        self.last_t_s = t_s
+        self.decoder.bad += 1
+        if self._sample_to:
+            sample = Sample(t_s, self.start_wall + t_s, raw, escape(raw), None, None, State.BAD, None)
+            for tell in self._sample_to:
+                tell(sample)
+
     def tick(self, t_s: float) -> None:
         """Time has passed (after every block read): held values may become seatings; listeners flush, redraw."""
         self.detector.advance(t_s)

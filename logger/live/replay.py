@@ -9,7 +9,8 @@ from logger.config.profile import Profile
 from logger.errors import UserError
 from logger.live.listener import Listener
 from logger.live.pipeline import Pipeline, RunSettings
-from logger.formats.recording import is_recording, open_recording, parse_event, read_plain, read_recording
+from logger.formats.recording import (is_recording, open_recording, parse_event, parse_partial, read_plain,
+                                      read_recording)
 from logger.live.batch import feed_recording
 from logger.run.writer import RunWriter, prepare_folder
 
@@ -37,6 +38,8 @@ def replay_file(path: str | Path, profile: Profile, settings: RunSettings, out_d
             pipeline.gap(*event[1])
         elif event is not None:
             end_s = event[1][0]
+        elif (partial := parse_partial(text)) is not None:  # the tail of a line the capture's port opened in
+            pipeline.partial(*partial)
 
     batch = batch and not listeners
     if is_recording(path):

@@ -10,6 +10,7 @@ boundaries everywhere, so seatings, holds and rests are cut across them.
 
 from __future__ import annotations
 
+import json
 import random
 from pathlib import Path
 
@@ -201,3 +202,13 @@ def test_records_around_a_captures_comments_still_go_the_batch_way(tmp_path, pro
     monkeypatch.setattr(batch, "_feed_block", counting)
     replay_file(tmp_path / "cap.rec", profile, fresh_settings(profile), tmp_path / "out", force=True)
     assert len(batched) == 2 and sum(batched) == len(recs) - 2  # before the gap, after it up to the end
+
+
+def test_an_event_before_the_first_record_is_not_taken_for_the_header(blocks, tmp_path, profile):
+    # The device went away before its first line: the gap comes straight after the header, and must
+    # reach the run (it was read as part of the header and lost), both ways.
+    recs = [(0.0, None)] + [(0.5 + t_s, raw) for t_s, raw in timed(session(2, rate_hz=100, seed=4).lines)]
+    write_drawn(tmp_path / "early-gap.rec", recs)
+    got = both(tmp_path / "early-gap.rec", tmp_path, profile)
+    assert_same(got)
+    assert json.loads(got[True][0]["summary.json"])["gaps"] == [{"t_start_s": 0.0, "t_end_s": 0.5}]

@@ -25,6 +25,7 @@ import pytest
 from click.testing import CliRunner
 from hypothesis import given, strategies as st
 
+from benchmarks.feeder import PtyDevice
 from tests.helpers.paths import EXAMPLE_PROFILE, ROOT
 from tests.helpers.stand import wait_for
 import logger.live.capture as capture_module
@@ -422,3 +423,58 @@ def test_a_device_that_never_appeared_leaves_no_empty_run_folder(tmp_path):
     proc = _capture_process(tmp_path / "missing", tmp_path / "run", "--wait", "0.3")
     proc.communicate(timeout=30)
     assert proc.returncode == 3 and not (tmp_path / "run").exists()
+
+
+@pytest.mark.parametrize("first_bytes,is_tail", [(b"841 mm\r\n", True), (b"-1.841 mm\r\n", False), (b"\r\n", False)])
+def test_a_port_opened_mid_line(tmp_path, first_bytes, is_tail):
+    # An indicator streaming when the port opens: the bytes before the first line end may be the tail
+    # of a line ("-1.841 mm" cut to "841 mm": a reading of the wrong value).  Such a tail is kept, as
+    # a comment in stream.rec and a bad line in samples.csv, never as a reading; a whole first line
+    # is a reading, and a first line that reads as nothing stays an ordinary bad line.  The same at
+    # the reopening after an unplug.  The replay of stream.rec gives the very same run folder.
+    dev = PtyDevice(tmp_path / "ttyINDICATOR")
+    profile = load_profile(EXAMPLE_PROFILE)
+    stop, out = Stop(), tmp_path / "cap"
+    done = []
+    worker = threading.Thread(target=lambda: done.append(capture(str(dev.link), profile, settings_for(profile), out,
+                                                                 stop=stop, wait_s=5)), daemon=True)
+
+    def gaps():
+        try:
+            return len(json.loads((out / "summary.json").read_text())["gaps"])
+        except (OSError, ValueError, KeyError):
+            return 0
+
+    try:
+        worker.start()
+        wait_for(lambda: (out / "stream.rec").exists(), 30, "the capture to start")
+        dev.write(first_bytes + b"-1.841 mm\r\n" * 20)
+        time.sleep(0.5)
+        dev.unplug()
+        dev.plug()
+        wait_for(lambda: gaps() == 1, 30, "the capture to reopen the port")
+        dev.write(first_bytes + b"-1.841 mm\r\n" * 20)
+        time.sleep(0.5)
+        stop.requested = True
+        worker.join(30)
+    finally:
+        dev.close()
+    assert not worker.is_alive() and done
+    summary = done[0]
+    samples = pd.read_csv(out / "samples.csv", keep_default_na=False)
+    rec = (out / "stream.rec").read_text()
+    firsts = [0, 21]  # the first line of each opening
+    assert summary["lines"] == 42 and len(samples) == 42
+    assert summary["bad_lines"] == (2 if is_tail or first_bytes == b"\r\n" else 0)
+    if is_tail:
+        assert all(samples.raw[k] == "841 mm\\x0d" and samples.value_mm[k] == "" and samples.state[k] == "bad"
+                   for k in firsts)
+        assert rec.count("# partial ") == 2 and "\t841 mm" not in rec
+    else:
+        assert "# partial " not in rec
+        assert all((first_bytes != b"\r\n") == (samples.value_mm[k] != "") for k in firsts)
+    assert all(float(v) == -1.841 for k, v in enumerate(samples.value_mm) if k not in firsts)
+    again = replay_file(out / "stream.rec", profile, settings_for(profile), tmp_path / "again")
+    assert again == summary
+    for name in ("summary.json", "seatings.csv", "samples.csv"):
+        assert (out / name).read_bytes() == (tmp_path / "again" / name).read_bytes(), name

@@ -1,0 +1,58 @@
+"""The first line after the port opens (logger.live.opening): whole, or the tail of a line sent before."""
+
+from __future__ import annotations
+
+from hypothesis import given, strategies as st
+
+from logger.formats.decode import Decoder
+from logger.live.opening import FirstLine
+
+# Lines of one form and one width, the sign always written: an indicator's usual stream
+# (common practice; the decoder's forms are those of the contract's "Stream lines").
+_VALUES = st.lists(st.floats(-9.999, 9.999, allow_nan=False), min_size=2, max_size=12)
+_UNITS = st.sampled_from([b" mm", b"mm", b"in", b""])
+
+
+def _judge(first: FirstLine, lines: list[bytes], t0: float = 0.0) -> list[tuple[float, bytes, bool]]:
+    return [item for k, raw in enumerate(lines) for item in first.lines(t0 + k, raw)]
+
+
+def _checker() -> FirstLine:
+    decoder = Decoder()
+    return FirstLine(lambda raw: decoder.parse(raw)[0] is not None)
+
+
+@given(values=_VALUES, cut=st.integers(0, 12), unit=_UNITS)
+def test_a_tail_is_never_taken_as_a_reading(values, cut, unit):
+    # The port opened `cut` bytes into the first line: what came is its tail.  Every line is taken,
+    # in order, at its own time; the tail is marked exactly when it is one and reads as a value
+    # (a tail that reads as nothing is an ordinary bad line); no whole line is ever marked.
+    lines = [b"%+.3f%s\r" % (v, unit) for v in values]
+    cut = min(cut, len(lines[0]))
+    got = lines[:]
+    got[0] = lines[0][cut:]
+    first = _checker()
+    taken = _judge(first, got) + first.release()
+    assert [(t, raw) for t, raw, _ in taken] == [(float(k), raw) for k, raw in enumerate(got)]
+    reads = Decoder().parse(got[0])[0] is not None
+    assert [p for _, _, p in taken] == [cut > 0 and reads] + [False] * (len(got) - 1)
+
+
+@given(values=_VALUES, cut=st.integers(1, 5))
+def test_each_opening_is_judged_again(values, cut):
+    # After a gap the port opens again: its first line is in question again, the lines between not.
+    lines = [b"%+.3f mm\r" % v for v in values]
+    first = _checker()
+    before = _judge(first, lines) + first.release()
+    first.opened()
+    after = _judge(first, [lines[0][cut:], *lines[1:]], t0=100.0) + first.release()
+    assert [p for _, _, p in before] == [False] * len(lines)
+    assert [p for _, _, p in after] == [True] + [False] * (len(lines) - 1)
+
+
+def test_a_first_line_with_nothing_after_it_is_taken_as_it_came():
+    # The device went away after one line: nothing to judge it by, so it is taken as received.
+    first = _checker()
+    assert first.lines(1.0, b"841 mm\r") == []
+    assert first.release() == [(1.0, b"841 mm\r", False)]
+    assert first.lines(2.0, b"-1.841 mm\r") == [(2.0, b"-1.841 mm\r", False)]  # not armed until opened()
