@@ -11,6 +11,7 @@ open is `DeviceGone`, which the capture layer catches to reconnect.
 from __future__ import annotations
 
 import errno
+import functools
 import os
 import select
 import shutil
@@ -95,6 +96,7 @@ class SerialSource:
         if cat is None:
             self.close()
             raise UserError("--gather needs the 'cat' program on this computer (it reads the port in the meantime)")
+        command = [*_ends_with_parent(), cat]
         import termios  # POSIX only, as are ports with a file descriptor
 
         # pyserial opens the port non-blocking with VMIN 0 (its reads wait in select); the relay's read
@@ -106,7 +108,7 @@ class SerialSource:
             os.set_blocking(fd, True)
             # its own session: a Ctrl-C at the terminal (SIGINT to the whole foreground group) ends the
             # capture, which then ends the relay; the relay dying first would look like an unplug
-            self._relay = subprocess.Popen([cat], stdin=fd, stdout=subprocess.PIPE, stderr=subprocess.DEVNULL,
+            self._relay = subprocess.Popen(command, stdin=fd, stdout=subprocess.PIPE, stderr=subprocess.DEVNULL,
                                            bufsize=0, start_new_session=True)
         except (termios.error, OSError, subprocess.SubprocessError) as exc:  # termios.error is no OSError
             self.close()  # the port's exclusive hold released: the next try can open it
@@ -244,6 +246,28 @@ def pyserial_url(url: str) -> str:
     if parts.scheme.lower() != "rfc2217" or "ign_set_control" in parse_qs(parts.query, keep_blank_values=True):
         return url
     return url + ("&" if parts.query else "?") + "ign_set_control"
+
+
+@functools.lru_cache(maxsize=1)
+def _ends_with_parent() -> tuple[str, ...]:
+    """The prefix that ends the relay when the capture dies, even by kill -9 (Linux: setpriv --pdeathsig).
+
+    Without it a relay outlives a killed capture and holds the port until
+    its next byte (writing into the closed pipe ends it).  util-linux's
+    setpriv asks the kernel for a signal at the parent's death and execs
+    the relay in its place; tried once, as an older setpriv lacks the option.
+    Elsewhere (macOS): no prefix.
+    """
+    setpriv = shutil.which("setpriv")
+    if setpriv is None:
+        return ()
+    prefix = (setpriv, "--pdeathsig", "TERM", "--")
+    try:
+        works = subprocess.run([*prefix, "true"], stdin=subprocess.DEVNULL, stdout=subprocess.DEVNULL,
+                               stderr=subprocess.DEVNULL, timeout=10).returncode == 0
+    except (OSError, subprocess.SubprocessError):
+        works = False
+    return prefix if works else ()
 
 
 def _keep_input() -> None:

@@ -16,7 +16,7 @@ import pytest
 import serial
 
 from logger.errors import DeviceGone, DeviceNotFound, UserError
-from logger.transport.serial_source import SerialSource, list_ports, open_error_message
+from logger.transport.serial_source import SerialSource, _ends_with_parent, list_ports, open_error_message
 
 REPO = Path(__file__).resolve().parents[2]
 
@@ -222,6 +222,44 @@ for _ in range({rounds}):
         bridge.wait(timeout=30)
         lst.close()
     assert got_all == [True] * rounds
+
+
+@pytest.mark.skipif(not _ends_with_parent(), reason="no setpriv --pdeathsig here: the relay ends at its next byte")
+def test_a_capture_killed_outright_does_not_leave_its_relay_holding_the_port():
+    # kill -9 of a gathering capture: its relay must end with it, so the port is free again at once,
+    # not only after the device's next byte (a polled indicator sends none unasked).
+    master, slave = os.openpty()
+    path = os.ttyname(slave)
+    holder = subprocess.Popen(
+        [sys.executable, "-c", "import sys, time\n"
+         "from logger.transport.serial_source import SerialSource\n"
+         f"src = SerialSource({path!r}, relay=True); src.open(); print(src._relay.pid, flush=True); time.sleep(60)"],
+        stdout=subprocess.PIPE, text=True, env=dict(os.environ, PYTHONPATH=str(REPO)))
+    try:
+        relay = int(holder.stdout.readline())
+        with pytest.raises(DeviceNotFound, match="busy"):
+            SerialSource(path).open()  # held: the capture has it
+        holder.kill()
+        holder.wait(timeout=30)
+        deadline = time.monotonic() + 5
+        while _running(relay) and time.monotonic() < deadline:
+            time.sleep(0.02)
+        assert not _running(relay)
+        again = SerialSource(path)
+        again.open()  # free again, and no byte was sent meanwhile
+        again.close()
+    finally:
+        holder.kill()
+        os.close(master)
+        os.close(slave)
+
+
+def _running(pid: int) -> bool:
+    """The process exists and is no zombie (a container's first process may not reap orphans)."""
+    try:
+        return Path(f"/proc/{pid}/stat").read_text().rsplit(")", 1)[1].split()[0] != "Z"
+    except OSError:
+        return False
 
 
 def test_the_relay_keeps_lines_a_gathering_reader_has_not_read_when_the_device_hangs_up():
