@@ -56,3 +56,16 @@ def test_a_first_line_with_nothing_after_it_is_taken_as_it_came():
     assert first.lines(1.0, b"841 mm\r") == []
     assert first.release() == [(1.0, b"841 mm\r", False)]
     assert first.lines(2.0, b"-1.841 mm\r") == [(2.0, b"-1.841 mm\r", False)]  # not armed until opened()
+
+
+def test_a_shorter_first_line_of_another_form_is_a_reading():
+    # Only a line shaped like the end of the next one is taken for its tail.
+    first = _checker()
+    assert first.lines(1.0, b"+1.5\r") == []
+    assert first.lines(2.0, b"-0.0125 in\r") == [(1.0, b"+1.5\r", False), (2.0, b"-0.0125 in\r", False)]
+    first.opened()
+    first.lines(3.0, b"12.5 mm\r")
+    assert first.lines(4.0, b"-0,125 mm\r")[0][2] is False  # another decimal mark: another form
+    first.opened()
+    first.lines(5.0, b"0.340 mm\r")  # unsigned before a minus: taken for a tail (whole or cut, it looks the same)
+    assert first.lines(6.0, b"-0.341 mm\r")[0][2] is True
