@@ -171,14 +171,15 @@ def partial_comment(t_s: float, raw: bytes) -> str:
 
 
 def parse_partial(text: str) -> tuple[float, bytes] | None:
-    """(t_s, raw) of a partial-line comment, None for any other comment."""
+    """(t_s, raw) of a partial-line comment, None for any other comment (or one with an unusable time)."""
     word, *args = text.split() or [""]
     if word != "partial" or len(args) > 2:
         return None
     try:
-        return float(args[0]), unescape(args[1] if len(args) == 2 else "")
+        t_s, raw = float(args[0]), unescape(args[1] if len(args) == 2 else "")
     except (IndexError, ValueError, UserError):
         return None
+    return (t_s, raw) if math.isfinite(t_s) else None
 
 
 def parse_event(text: str) -> tuple[str, list[float]] | None:
@@ -187,9 +188,10 @@ def parse_event(text: str) -> tuple[str, list[float]] | None:
     if (word, len(args)) not in (("gap", 2), ("end", 1)):
         return None
     try:
-        return word, [float(a) for a in args]
+        times = [float(a) for a in args]
     except ValueError:
         return None
+    return (word, times) if all(map(math.isfinite, times)) else None  # an edited file's inf or nan: no event
 
 
 def _one_line(value) -> str:
@@ -213,8 +215,8 @@ def read_recording(path, on_comment: Callable[[str], None] | None = None
     """Header dict (with `start_wall`, epoch seconds, when stated) and an iterator of (t_s, raw, text).
 
     `text` is the record's escaped field as it stands in the file (what
-    samples.csv shows).  Comments between records (a capture's "gap T0 T1"
-    and "end T") go to `on_comment`, in order with the records.
+    samples.csv shows).  Comments between records (a capture's "gap T0 T1",
+    "end T" and "partial T BYTES") go to `on_comment`, in order with the records.
     """
     header, p, f, first, lineno = open_recording(path)
     return header, _records(p, f, first, lineno, on_comment)

@@ -3,7 +3,7 @@
 `saglog replay` has nobody watching, so it need not tell anyone about each
 line: blocks of the common kind are decoded (logger.formats.batch_decode),
 detected (logger.analysis.batch_seating) and written (logger.run.block_rows)
-with array operations; comment lines (a capture's gaps and end) are cut out
+with array operations; comment lines (a capture's gaps, end and partial lines) are cut out
 of their block and read as the incremental reader reads them, and every
 other block (odd lines) goes through `Pipeline.line` as in a capture.  Both
 feed the same decoder

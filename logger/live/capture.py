@@ -195,6 +195,7 @@ def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | P
             if chunk:
                 _take_chunk(splitter, opening, rec, pipeline, chunk, since, now)
                 wait_s = src.read_timeout_s  # while lines flow, the next arrives soon: nothing more to work out
+            _take_all(rec, pipeline, opening.due(now))  # a first line that no reading followed in time
             pipeline.tick(now)
             mono = time.monotonic()
             if rec.pending and mono - last_rec_flush >= REC_FLUSH_S:
@@ -206,7 +207,7 @@ def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | P
                 break
             if not chunk:
                 rec_due_s = REC_FLUSH_S - (mono - last_rec_flush) if rec.pending else None
-                wait_s = _quiet_wait(pipeline, src, now, rec_due_s, duration_s)
+                wait_s = _quiet_wait(pipeline, src, opening, now, rec_due_s, duration_s)
             elif gather_s and len(chunk) < GATHER_BYTES:  # a slow stream: let the next lines gather
                 poll_in_s = src.next_poll_in_s()  # a polled indicator is still asked on time
                 poll_at = math.inf if poll_in_s is None else now + poll_in_s
@@ -219,10 +220,11 @@ def capture(port: str, profile: Profile, settings: RunSettings, out_dir: str | P
     return summary
 
 
-def _quiet_wait(pipeline: Pipeline, src: SerialSource, now: float, rec_due_s: float | None,
+def _quiet_wait(pipeline: Pipeline, src: SerialSource, opening: FirstLine, now: float, rec_due_s: float | None,
                 duration_s: float | None) -> float:
-    """Nothing came: sleep until the soonest thing due (a tick someone needs, a poll, the recording's flush, the end)."""
-    waits = [IDLE_WAIT_S, pipeline.next_tick_in_s(now), src.next_poll_in_s(), rec_due_s,
+    """Nothing came: sleep until the soonest thing due (a tick someone needs, a poll, a first line's wait, the
+    recording's flush, the end)."""
+    waits = [IDLE_WAIT_S, pipeline.next_tick_in_s(now), src.next_poll_in_s(), opening.due_in_s(now), rec_due_s,
              None if duration_s is None else duration_s - now]
     return max(0.001, min(w for w in waits if w is not None))
 
@@ -238,7 +240,8 @@ def _wind_up(splitter, opening, rec, pipeline, src, end: float) -> dict:
         except UserError as exc:
             first = first or exc
 
-    attempt(lambda: _take_cut(splitter, opening, rec, pipeline, end))
+    attempt(lambda: _take_all(rec, pipeline, opening.release()))  # each its own step: one failing
+    attempt(lambda: _take_all(rec, pipeline, [(end, raw, False) for raw in splitter.flush()]))  # skips not the other
     attempt(lambda: rec.comment(end_comment(end)))
     attempt(rec.close)
     summary = attempt(lambda: pipeline.finish(end))
@@ -255,16 +258,19 @@ def _take_chunk(splitter: LineSplitter, opening: FirstLine, rec: RecWriter, pipe
     lines = splitter.feed(chunk)
     times = [now] * len(lines) if since is None else spread_times(since, now, len(lines))
     for t_s, raw in zip(times, lines):
-        for item in opening.lines(t_s, raw):
-            _take(rec, pipeline, *item)
+        _take_all(rec, pipeline, opening.lines(t_s, raw))
 
 
 def _take_cut(splitter: LineSplitter, opening: FirstLine, rec: RecWriter, pipeline: Pipeline, t_s: float) -> None:
-    """The port closed (a gap, the end): a first line still held, then a half line before the cut, are taken."""
-    for item in opening.release():
-        _take(rec, pipeline, *item)
+    """The port closed (a gap): what waited after the opening, then a half line before the cut, are taken."""
+    _take_all(rec, pipeline, opening.release())
     for raw in splitter.flush():  # a half line before the cut is still a received line
         _take(rec, pipeline, t_s, raw)
+
+
+def _take_all(rec: RecWriter, pipeline: Pipeline, items) -> None:
+    for item in items:
+        _take(rec, pipeline, *item)
 
 
 def _take_the_rest(src: SerialSource, splitter, opening, rec, pipeline, since: float | None, clock) -> None:

@@ -71,6 +71,8 @@ class SerialSource:
                 # reset_input_buffer); a bridge that sends on connect, a backlog say, would lose it
                 ser.reset_input_buffer = _keep_input
             ser.open()
+            if self._socket:
+                del ser.reset_input_buffer  # only the open's: pyserial's own again from here on
         except (serial.SerialException, OSError, ValueError) as exc:
             err = DeviceNotFound(open_error_message(self.url, exc))
             err.absent = _absent(exc)
@@ -248,22 +250,24 @@ def pyserial_url(url: str) -> str:
     return url + ("&" if parts.query else "?") + "ign_set_control"
 
 
-@functools.lru_cache(maxsize=1)
+@functools.cache
 def _ends_with_parent() -> tuple[str, ...]:
     """The prefix that ends the relay when the capture dies, even by kill -9 (Linux: setpriv --pdeathsig).
 
     Without it a relay outlives a killed capture and holds the port until
     its next byte (writing into the closed pipe ends it).  util-linux's
-    setpriv asks the kernel for a signal at the parent's death and execs
-    the relay in its place; tried once, as an older setpriv lacks the option.
-    Elsewhere (macOS): no prefix.
+    setpriv (2.33 on) asks the kernel for a signal at the death of the
+    thread that started it, and execs the relay in its place: the capture's
+    thread, which opens and closes the port.  Tried once, with the relay
+    itself; without setpriv, or with one that lacks the option (macOS, an
+    older or a BusyBox one): no prefix.
     """
-    setpriv = shutil.which("setpriv")
-    if setpriv is None:
+    setpriv, cat = shutil.which("setpriv"), shutil.which("cat")
+    if setpriv is None or cat is None:
         return ()
     prefix = (setpriv, "--pdeathsig", "TERM", "--")
     try:
-        works = subprocess.run([*prefix, "true"], stdin=subprocess.DEVNULL, stdout=subprocess.DEVNULL,
+        works = subprocess.run([*prefix, cat, os.devnull], stdin=subprocess.DEVNULL, stdout=subprocess.DEVNULL,
                                stderr=subprocess.DEVNULL, timeout=10).returncode == 0
     except (OSError, subprocess.SubprocessError):
         works = False

@@ -12,7 +12,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from logger.errors import UserError
-from logger.formats.recording import RecWriter, escape, is_recording, read_plain, read_recording, unescape
+from logger.formats.recording import (RecWriter, escape, is_recording, parse_event, parse_partial, partial_comment,
+                                      read_plain, read_recording, unescape)
 
 
 def contract_escape(raw: bytes) -> str:
@@ -135,3 +136,16 @@ def test_is_recording(tmp_path):
     bare.write_text("0.000000\t1.000\n")
     plain.write_bytes(b"+1.000 mm\r\n+1.001 mm\r\n")
     assert is_recording(rec) and is_recording(bare) and not is_recording(plain)
+
+
+@given(raw=st.binary(max_size=300), t_s=st.floats(0, 1e6, allow_nan=False))
+def test_a_partial_line_comment_gives_back_its_bytes_and_time(raw, t_s):
+    # written by RecWriter.comment and read back stripped, as block_records hands comments on
+    text = partial_comment(t_s, raw)
+    assert parse_partial(text.strip()) == (float(f"{t_s:.6f}"), raw)
+
+
+@pytest.mark.parametrize("text", ["partial inf 1", "partial nan 1", "gap nan 1.0", "gap 1.0 inf", "end -inf",
+                                  "partial x 1", "partial 1.0 \\xz1", "gap 1.0"])
+def test_an_event_comment_with_an_unusable_time_is_no_event(text):
+    assert parse_partial(text) is None and parse_event(text) is None

@@ -478,3 +478,26 @@ def test_a_port_opened_mid_line(tmp_path, first_bytes, is_tail):
     assert again == summary
     for name in ("summary.json", "seatings.csv", "samples.csv"):
         assert (out / name).read_bytes() == (tmp_path / "again" / name).read_bytes(), name
+
+
+def test_a_lone_first_line_is_not_held_off_the_disk(tmp_path):
+    # An indicator that sends only on change, held still, sends one line and then nothing: the
+    # first line's wait for the next is bounded, so it reaches stream.rec and the run while the
+    # capture goes on (within the wait and the recording's flush), not only at the end.
+    dev = PtyDevice(tmp_path / "ttyINDICATOR")
+    profile = load_profile(EXAMPLE_PROFILE)
+    stop, out = Stop(), tmp_path / "cap"
+    done = []
+    worker = threading.Thread(target=lambda: done.append(capture(str(dev.link), profile, settings_for(profile), out,
+                                                                 stop=stop, wait_s=5)), daemon=True)
+    try:
+        worker.start()
+        wait_for(lambda: (out / "stream.rec").exists(), 30, "the capture to start")
+        dev.write(b"-1.234 mm\r\n")
+        wait_for(lambda: "\t-1.234 mm" in (out / "stream.rec").read_text(), 5, "the line in stream.rec")
+        assert worker.is_alive()
+        stop.requested = True
+        worker.join(30)
+    finally:
+        dev.close()
+    assert done and done[0]["lines"] == 1 and done[0]["bad_lines"] == 0

@@ -2,10 +2,11 @@
 
 from __future__ import annotations
 
+import pytest
 from hypothesis import given, strategies as st
 
 from logger.formats.decode import Decoder
-from logger.live.opening import FirstLine
+from logger.live.opening import HOLD_S, MAX_HELD, FirstLine
 
 # Lines of one form and one width, the sign always written: an indicator's usual stream
 # (common practice; the decoder's forms are those of the contract's "Stream lines").
@@ -69,3 +70,27 @@ def test_a_shorter_first_line_of_another_form_is_a_reading():
     first.opened()
     first.lines(5.0, b"0.340 mm\r")  # unsigned before a minus: taken for a tail (whole or cut, it looks the same)
     assert first.lines(6.0, b"-0.341 mm\r")[0][2] is True
+
+
+def test_lines_that_read_as_nothing_wait_with_the_first():
+    # A blank line, noise or a message after the first line: the first is judged by the next reading,
+    # and the lines between come out after it, in order.
+    first = _checker()
+    assert first.lines(1.0, b"841 mm\r") == [] and first.lines(1.1, b"\r") == [] and first.lines(1.2, b"ERR 3") == []
+    assert first.lines(1.3, b"-1.841 mm\r") == [(1.0, b"841 mm\r", True), (1.1, b"\r", False), (1.2, b"ERR 3", False),
+                                               (1.3, b"-1.841 mm\r", False)]
+
+
+def test_waiting_is_bounded_in_time_and_in_lines():
+    # An indicator that sends only on change, held still: the first line does not wait for ever.
+    first = _checker()
+    first.lines(10.0, b"-1.841 mm\r")
+    assert first.due_in_s(10.2) == pytest.approx(HOLD_S - 0.2)
+    assert first.due(10.0 + HOLD_S * 0.99) == []
+    assert first.due(10.0 + HOLD_S) == [(10.0, b"-1.841 mm\r", False)] and first.due_in_s(11.0) is None
+    # nor behind a long burst of lines that read as nothing
+    first.opened()
+    first.lines(20.0, b"841 mm\r")
+    noise = [first.lines(20.0 + k / 100, b"\xff\x00") for k in range(1, MAX_HELD + 1)]
+    assert all(x == [] for x in noise[:-1]) and len(noise[-1]) == MAX_HELD + 1
+    assert [p for _, _, p in noise[-1]] == [False] * (MAX_HELD + 1)
