@@ -425,6 +425,14 @@ def test_a_device_that_never_appeared_leaves_no_empty_run_folder(tmp_path):
     assert proc.returncode == 3 and not (tmp_path / "run").exists()
 
 
+def _capture_in_a_thread(dev: PtyDevice, out):
+    """A capture of `dev` into `out` on a thread not yet started: (profile, stop, out, [its summary], thread)."""
+    profile, stop, done = load_profile(EXAMPLE_PROFILE), Stop(), []
+    worker = threading.Thread(target=lambda: done.append(capture(str(dev.link), profile, settings_for(profile), out,
+                                                                 stop=stop, wait_s=5)), daemon=True)
+    return profile, stop, out, done, worker
+
+
 @pytest.mark.parametrize("first_bytes,is_tail", [(b"841 mm\r\n", True), (b"-1.841 mm\r\n", False), (b"\r\n", False)])
 def test_a_port_opened_mid_line(tmp_path, first_bytes, is_tail):
     # An indicator streaming when the port opens: the bytes before the first line end may be the tail
@@ -433,11 +441,7 @@ def test_a_port_opened_mid_line(tmp_path, first_bytes, is_tail):
     # is a reading, and a first line that reads as nothing stays an ordinary bad line.  The same at
     # the reopening after an unplug.  The replay of stream.rec gives the very same run folder.
     dev = PtyDevice(tmp_path / "ttyINDICATOR")
-    profile = load_profile(EXAMPLE_PROFILE)
-    stop, out = Stop(), tmp_path / "cap"
-    done = []
-    worker = threading.Thread(target=lambda: done.append(capture(str(dev.link), profile, settings_for(profile), out,
-                                                                 stop=stop, wait_s=5)), daemon=True)
+    profile, stop, out, done, worker = _capture_in_a_thread(dev, tmp_path / "cap")
 
     def gaps():
         try:
@@ -485,11 +489,7 @@ def test_a_lone_first_line_is_not_held_off_the_disk(tmp_path):
     # first line's wait for the next is bounded, so it reaches stream.rec and the run while the
     # capture goes on (within the wait and the recording's flush), not only at the end.
     dev = PtyDevice(tmp_path / "ttyINDICATOR")
-    profile = load_profile(EXAMPLE_PROFILE)
-    stop, out = Stop(), tmp_path / "cap"
-    done = []
-    worker = threading.Thread(target=lambda: done.append(capture(str(dev.link), profile, settings_for(profile), out,
-                                                                 stop=stop, wait_s=5)), daemon=True)
+    _, stop, out, done, worker = _capture_in_a_thread(dev, tmp_path / "cap")
     try:
         worker.start()
         wait_for(lambda: (out / "stream.rec").exists(), 30, "the capture to start")
