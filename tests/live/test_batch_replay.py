@@ -20,7 +20,7 @@ from hypothesis import HealthCheck, given, settings, strategies as st
 import logger.live.batch as batch
 from benchmarks.feeder import session
 from logger.errors import UserError
-from logger.formats.recording import RecWriter, end_comment, gap_comment
+from logger.formats.recording import RecWriter, end_comment, gap_comment, partial_comment
 from logger.live.replay import replay_file
 from tests.helpers.paths import ROOT
 from tests.live.test_faults import fresh_settings, timed, write_rec
@@ -119,7 +119,8 @@ _LINE = st.one_of(
 def streams(draw):
     """Levels held for a while with a little noise, lifts between, odd lines and gaps here and there.
 
-    (t, None) stands for a gap comment; the stream may end with the end comment a capture writes.
+    (t, None) stands for a gap comment, (t, ("partial", raw)) for the tail of a line the port opened
+    in; the stream may end with the end comment a capture writes.
     """
     t, recs = 0.0, []
     for _ in range(draw(st.integers(1, 8))):
@@ -139,6 +140,8 @@ def streams(draw):
                 continue
             if rng.random() < 0.005:
                 recs.append((t, None))  # the device was away: a gap comment among the records
+                if draw(st.booleans()):  # and came back mid-line: the tail of a line, kept in a comment
+                    recs.append((t + 0.5, ("partial", draw(_LINE))))
             line = b"%+.3f mm\r" % (level + creep * k + rng.gauss(0, noise))
             if not (on_change and line == last):
                 recs.append((t, line))
@@ -155,6 +158,8 @@ def write_drawn(path: Path, recs) -> None:
             w.comment(gap_comment(t_s, t_s + 0.5))
         elif raw == "end":
             w.comment(end_comment(t_s))
+        elif isinstance(raw, tuple):
+            w.comment(partial_comment(t_s, raw[1]))
         else:
             w.write(t_s, raw)
     w.close()

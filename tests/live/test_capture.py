@@ -478,10 +478,12 @@ def test_a_port_opened_mid_line(tmp_path, first_bytes, is_tail):
         assert "# partial " not in rec
         assert all((first_bytes != b"\r\n") == (samples.value_mm[k] != "") for k in firsts)
     assert all(float(v) == -1.841 for k, v in enumerate(samples.value_mm) if k not in firsts)
-    again = replay_file(out / "stream.rec", profile, settings_for(profile), tmp_path / "again")
-    assert again == summary
-    for name in ("summary.json", "seatings.csv", "samples.csv"):
-        assert (out / name).read_bytes() == (tmp_path / "again" / name).read_bytes(), name
+    for batch in (True, False):  # the replay both ways
+        again = replay_file(out / "stream.rec", profile, settings_for(profile), tmp_path / f"again-{batch}",
+                            batch=batch)
+        assert again == summary
+        for name in ("summary.json", "seatings.csv", "samples.csv"):
+            assert (out / name).read_bytes() == (tmp_path / f"again-{batch}" / name).read_bytes(), name
 
 
 def test_a_lone_first_line_is_not_held_off_the_disk(tmp_path):
