@@ -47,8 +47,9 @@ def feed_recording(p: Path, f, first: bytes | None, lineno: int, pipeline: Pipel
 def _around_comments(data: bytes) -> list[bytes]:
     """A block cut into its comment lines and the runs of records between them, in order.
 
-    A capture's recording has comments among its records (every gap, and
-    the end); the records around them still go the batch way.
+    A capture's recording has comments among its records (every gap, a
+    partial line after an opening, the end); the records around them still
+    go the batch way.
     """
     if data[:1] != b"#" and b"\n#" not in data:
         return [data]
