@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import contextlib
 from pathlib import Path
 from typing import Sequence
 
@@ -64,6 +65,10 @@ def replay_file(path: str | Path, profile: Profile, settings: RunSettings, out_d
             feed_recording(p, f, first, lineno, pipeline, writer, on_comment)
         for t_s, raw, text in records or ():
             pipeline.line(t_s, raw, text)
-    finally:
-        pipeline.finish(end_s)
+    except BaseException:
+        # what came before is still analysed and written where it can be; the first error is the one to report
+        with contextlib.suppress(UserError):
+            pipeline.finish(end_s)
+        raise
+    pipeline.finish(end_s)
     return pipeline.summary
