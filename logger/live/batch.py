@@ -6,15 +6,21 @@ detected (logger.analysis.batch_seating) and written (logger.run.block_rows)
 with array operations; comment lines (a capture's gaps, end and partial lines) are cut out
 of their block and read as the incremental reader reads them, and every
 other block (odd lines) goes through `Pipeline.line` as in a capture.  Both
-feed the same decoder
-counts, detector and list of seatings, and the pipeline's `finish` analyses
-and writes the rest, so the run folder is byte-identical to the incremental
-replay's (tests/live/test_batch_replay.py).
+feed the same decoder counts, detector and list of seatings, and the
+pipeline's `finish` analyses and writes the rest, so the run folder is
+byte-identical to the incremental replay's (tests/live/test_batch_replay.py).
+
+A block's rows are formatted and written on a second thread while the next
+block is decoded and detected (`RowsBehind`): the write and most of the
+formatting are numpy and system calls, which let the other thread run.
+One block at most is in flight, and it is always finished before anything
+else reaches the run folder, so the bytes land in the same order.
 """
 
 from __future__ import annotations
 
 import re
+from concurrent.futures import Future, ThreadPoolExecutor
 from pathlib import Path
 from typing import Callable
 
@@ -32,16 +38,54 @@ _COMMENT_LINE = re.compile(rb"^#[^\n]*(?:\n|$)", re.MULTILINE)
 def feed_recording(p: Path, f, first: bytes | None, lineno: int, pipeline: Pipeline, writer: RunWriter,
                    on_comment: Callable[[str], None]) -> None:
     """Every record of an open recording into `pipeline`, whose only listener is `writer`."""
-    with f:
+    with f, RowsBehind(writer) as rows:
         for data in record_blocks(f, first, BLOCK_BYTES):
             for part in _around_comments(data):
                 block = None if part[:1] == b"#" else decode_block(part, pipeline.decoder.parse)
                 if block is None:
+                    rows.wait()  # the rows before these first: they go to the same files
                     for t_s, raw, text in block_records(p, part, lineno, on_comment):
                         pipeline.line(t_s, raw, text)
                 else:
-                    _feed_block(block, pipeline, writer)
+                    _feed_block(block, pipeline, rows)
                 lineno += part.count(b"\n") + (not part.endswith(b"\n"))
+
+
+class RowsBehind:
+    """A block's samples.csv rows, formatted and written on one worker thread while the caller goes on.
+
+    `put` first waits for the block before (rows stay in order), `wait`
+    before anything else writes to the run folder; leaving the `with`
+    waits too, so nothing is still writing when the run is finished.  A
+    write error (a full disk) is raised by the next `put` or `wait`, in the
+    caller's thread, as the incremental writer raises it.
+    """
+
+    def __init__(self, writer: RunWriter):
+        self._writer = writer
+        self._pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="saglog-rows")
+        self._pending: Future | None = None
+
+    def put(self, block, t_wall, states, seats) -> None:
+        self.wait()
+        self._pending = self._pool.submit(lambda: self._writer.sample_block(block_rows(block, t_wall, states, seats)))
+
+    def wait(self) -> None:
+        pending, self._pending = self._pending, None
+        if pending is not None:
+            pending.result()
+
+    def __enter__(self) -> "RowsBehind":
+        return self
+
+    def __exit__(self, kind, exc, tb) -> None:
+        try:
+            if kind is None:
+                self.wait()
+            elif self._pending is not None:
+                self._pending.exception()  # finished, whatever it did: the error already on its way wins
+        finally:
+            self._pool.shutdown()
 
 
 def _around_comments(data: bytes) -> list[bytes]:
@@ -64,7 +108,7 @@ def _around_comments(data: bytes) -> list[bytes]:
     return parts
 
 
-def _feed_block(block, pipeline: Pipeline, writer: RunWriter) -> None:
+def _feed_block(block, pipeline: Pipeline, rows: RowsBehind) -> None:
     """One decoded block: counts, detection, rows; what `Pipeline.line` does for each of its lines."""
     good = block.good()
     n_good = int(good.sum())
@@ -81,4 +125,4 @@ def _feed_block(block, pipeline: Pipeline, writer: RunWriter) -> None:
                                                      pipeline.seatings)
     pipeline.last_t_s = float(block.t_s[-1])
     pipeline._state = pipeline.detector.state  # as Pipeline.line leaves it (no listener here hears states)
-    writer.sample_block(block_rows(block, pipeline.start_wall + block.t_s, states, seats))
+    rows.put(block, pipeline.start_wall + block.t_s, states, seats)

@@ -34,11 +34,14 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
+from click.testing import CliRunner
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from benchmarks.feeder import Pacer, PtyDevice, session
-from tests.helpers.paths import EXAMPLE_PROFILE, ROOT, run_saglog
+from tests.helpers.paths import EXAMPLE_PROFILE, ROOT, run_saglog, user_error
+from logger.cli.main import main
+from logger.live import batch
 from logger.live.capture import Stop, capture
 from logger.formats.decode import Decoder, LineSplitter
 from logger.analysis.seating import State
@@ -447,6 +450,22 @@ def test_read_only_folder_mid_capture_gives_one_line_and_keeps_what_was_written(
     assert rc == 2
     one_line_error(stderr, "Read-only file system")
     assert check_after_kill(out) >= before
+
+
+def test_disk_full_during_a_batch_replay_gives_one_line_and_keeps_the_rows_before_in_order(tmp_path, monkeypatch):
+    # The batch replay writes samples.csv on a second thread (logger.live.batch.RowsBehind): a write error
+    # there still reaches the user as the one line, from a later block's hand-over, and what reached the
+    # disk is the start of what a roomy disk gets, in the same order.
+    write_rec(tmp_path / "s.rec", timed(session(30, rate_hz=100, seed=29).lines))  # about 700 kB of rows
+    monkeypatch.setattr(batch, "BLOCK_BYTES", 1 << 14)  # blocks of about 600 lines: many hand-overs
+    args = ["replay", str(tmp_path / "s.rec"), "--profile", str(EXAMPLE_PROFILE), "--out"]
+    assert CliRunner().invoke(main, [*args, str(tmp_path / "roomy")]).exit_code == 0
+    whole = (tmp_path / "roomy" / "samples.csv").read_bytes()
+    with tmpfs(tmp_path / "small", "256k") as fs:
+        res = CliRunner().invoke(main, [*args, str(fs / "run")])
+        user_error(res, "No space left on device", "samples.csv")
+        kept = (fs / "run" / "samples.csv").read_bytes()
+    assert 10_000 < len(kept) < len(whole) and whole.startswith(kept)
 
 
 def test_read_only_folder_from_the_start(tmp_path):
