@@ -11,10 +11,11 @@ pipeline's `finish` analyses and writes the rest, so the run folder is
 byte-identical to the incremental replay's (tests/live/test_batch_replay.py).
 
 A block's rows are formatted and written on a second thread while the next
-block is decoded and detected (`RowsBehind`): the write and most of the
-formatting are numpy and system calls, which let the other thread run.
-One block at most is in flight, and it is always finished before anything
-else reaches the run folder, so the bytes land in the same order.
+block is decoded and detected (`RowsBehind`): the write and much of the
+formatting are system calls and numpy loops, during which the other thread
+runs (docs/performance.md has the figures).  One block at most is in
+flight, and it is always finished before anything else reaches the run
+folder, so the bytes land in the same order.
 """
 
 from __future__ import annotations
@@ -81,11 +82,9 @@ class RowsBehind:
     def __exit__(self, kind, exc, tb) -> None:
         try:
             if kind is None:
-                self.wait()
-            elif self._pending is not None:
-                self._pending.exception()  # finished, whatever it did: the error already on its way wins
+                self.wait()  # the last block's error, if any, is this run's
         finally:
-            self._pool.shutdown()
+            self._pool.shutdown()  # waits for a block still in flight; an error already on its way wins
 
 
 def _around_comments(data: bytes) -> list[bytes]:

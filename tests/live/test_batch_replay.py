@@ -12,16 +12,21 @@ from __future__ import annotations
 
 import json
 import random
+import threading
 from pathlib import Path
 
+import numpy as np
 import pytest
 from hypothesis import HealthCheck, given, settings, strategies as st
 
 import logger.live.batch as batch
 from benchmarks.feeder import session
 from logger.errors import UserError
+from logger.formats.batch_decode import decode_block
+from logger.formats.decode import Decoder
 from logger.formats.recording import RecWriter, end_comment, gap_comment, partial_comment
 from logger.live.replay import replay_file
+from logger.run.writer import RunWriter
 from tests.helpers.paths import ROOT
 from tests.live.test_faults import fresh_settings, timed, write_rec
 
@@ -217,3 +222,53 @@ def test_an_event_before_the_first_record_is_not_taken_for_the_header(blocks, tm
     got = both(tmp_path / "early-gap.rec", tmp_path, profile)
     assert_same(got)
     assert json.loads(got[True][0]["summary.json"])["gaps"] == [{"t_start_s": 0.0, "t_end_s": 0.5}]
+
+
+def _one_block() -> tuple:
+    """A decoded block of a few records and its rows' states, as `_feed_block` hands them to RowsBehind."""
+    data = b"".join(b"%.6f\t-0.340 mm\\x0d\n" % (k / 100) for k in range(1, 6))
+    block = decode_block(data, Decoder("mm").parse)
+    n = len(block.t_s)
+    return block, 1_780_000_000.0 + block.t_s, np.zeros(n, np.int8), np.full(n, -1, np.int64)
+
+
+def _no_worker_left() -> bool:
+    return not [t for t in threading.enumerate() if t.name.startswith("saglog-rows")]
+
+
+@pytest.mark.parametrize("hand_over", ["put", "wait", "end"])
+def test_a_write_error_on_the_worker_reaches_the_caller_at_each_hand_over(tmp_path, hand_over):
+    # RowsBehind writes a block's rows on a worker thread; its write error must come out at the next
+    # block's put, at the wait before the line-by-line path, or at the end of the replay (a disk that
+    # fills on the last block), and no worker may be left.  A closed RunWriter refuses every write.
+    (tmp_path / "run").mkdir()
+    writer = RunWriter(tmp_path / "run", 0.0, {})
+    writer.close()
+    args, raised_at = _one_block(), None
+    try:
+        with batch.RowsBehind(writer) as rows:
+            rows.put(*args)
+            try:
+                if hand_over == "put":
+                    rows.put(*args)
+                elif hand_over == "wait":
+                    rows.wait()
+            except UserError:
+                raised_at = hand_over
+                raise
+    except UserError as exc:
+        assert "samples.csv" in str(exc)
+        raised_at = raised_at or "end"
+    assert raised_at == hand_over
+    assert _no_worker_left()
+
+
+def test_an_error_of_the_replay_itself_wins_over_one_on_the_worker(tmp_path):
+    (tmp_path / "run").mkdir()
+    writer = RunWriter(tmp_path / "run", 0.0, {})
+    writer.close()
+    with pytest.raises(RuntimeError, match="the replay's own"):
+        with batch.RowsBehind(writer) as rows:
+            rows.put(*_one_block())
+            raise RuntimeError("the replay's own")
+    assert _no_worker_left()
