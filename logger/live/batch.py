@@ -58,8 +58,9 @@ class RowsBehind:
     `put` first waits for the block before (rows stay in order), `wait`
     before anything else writes to the run folder; leaving the `with`
     waits too, so nothing is still writing when the run is finished.  A
-    write error (a full disk) is raised by the next `put` or `wait`, in the
-    caller's thread, as the incremental writer raises it.
+    write error (a full disk) is raised by the next `put` or `wait`, or on
+    leaving the `with`, in the caller's thread, as the incremental writer
+    raises it.
     """
 
     def __init__(self, writer: RunWriter):
