@@ -17,6 +17,7 @@ import select
 import shutil
 import subprocess
 import time
+from pathlib import Path
 from urllib.parse import parse_qs, urlsplit
 
 import serial
@@ -112,6 +113,8 @@ class SerialSource:
             # capture, which then ends the relay; the relay dying first would look like an unplug
             self._relay = subprocess.Popen(command, stdin=fd, stdout=subprocess.PIPE, stderr=subprocess.DEVNULL,
                                            bufsize=0, start_new_session=True)
+            if command[0] != cat:
+                _until_exec(self._relay.pid, Path(cat).name)
         except (termios.error, OSError, subprocess.SubprocessError) as exc:  # termios.error is no OSError
             self.close()  # the port's exclusive hold released: the next try can open it
             err = DeviceNotFound(f"{self.url}: the port opened, but its relay did not start ({exc})")
@@ -272,6 +275,25 @@ def _ends_with_parent() -> tuple[str, ...]:
     except (OSError, subprocess.SubprocessError):
         works = False
     return prefix if works else ()
+
+
+def _until_exec(pid: int, name: str, wait_s: float = 2.0) -> None:
+    """Until the prefix has become the relay (Linux: /proc/PID/comm), or `wait_s`.
+
+    setpriv asks for the death signal and then execs the relay; a capture
+    killed between the two would leave the relay holding the port (under
+    load, 9 of 30 holders killed at once after the open did).  Once the
+    relay runs, the signal is armed, so the open returns only then.
+    """
+    comm = Path(f"/proc/{pid}/comm")
+    deadline = time.monotonic() + wait_s
+    while time.monotonic() < deadline:
+        try:
+            if comm.read_text().strip() == name:
+                return
+        except OSError:
+            return  # no /proc, or the relay already ended (its end reports the device gone)
+        time.sleep(0.001)
 
 
 def _keep_input() -> None:
