@@ -13,14 +13,19 @@ def length_text(x_mm, unit: str, digits: int = 4) -> str:
     return f"{from_mm(x_mm, unit) + 0.0:.{d}f} {unit}".replace(f"-{0:.{d}f} ", f"{0:.{d}f} ")
 
 
+def bad_lines_words(bad, lines) -> str:
+    """The summary's line counts in words: '1 bad line of 601', '0 bad lines of 1146' (either may be 'n/a')."""
+    return f"{bad} bad line{'' if bad == 1 else 's'} of {lines}"
+
+
 def result_lines(summary: dict) -> list[str]:
     """The few lines a person wants at the end of a run."""
     unit = summary.get("unit") or "mm"
     out = [f"{summary.get('status')}: {summary.get('message')}"]
     out.append(
         f"seatings: {summary.get('seatings_flat', 0)} flat, {summary.get('seatings_surface', 0)} surface accepted, "
-        f"{summary.get('seatings_rejected', 0)} rejected; {summary.get('bad_lines', 0)} bad lines of "
-        f"{summary.get('lines', 0)}"
+        f"{summary.get('seatings_rejected', 0)} rejected; "
+        f"{bad_lines_words(summary.get('bad_lines', 0), summary.get('lines', 0))}"
     )
     if summary.get("zero_mm") is not None:
         drift = summary.get("drift_mm_per_min") or 0.0

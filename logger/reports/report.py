@@ -29,6 +29,7 @@ from logger.reports import plotstyle as ps
 from logger.reports.envelope import TraceEnvelope
 from logger.checks import is_number
 from logger.config.profile import Spherometer, profile_words
+from logger.live.present import bad_lines_words
 from logger.run.columns import REPORT_PICTURE, REPORT_TEXT
 from logger.run.load import Run, load_run
 from logger.units import from_mm
@@ -120,7 +121,7 @@ def header_lines(run: Run, unit: str) -> list[str]:
         f"seatings: {s.get('seatings_flat', 'n/a')} flat, {s.get('seatings_surface', 'n/a')} "
         f"surface accepted, {s.get('seatings_rejected', 'n/a')} rejected"
         f" ({s.get('rejection') or 'no method'}) of {s.get('seatings_total', 'n/a')}"
-        f"; {s.get('bad_lines', 'n/a')} bad lines of {s.get('lines', 'n/a')}"
+        f"; {bad_lines_words(s.get('bad_lines', 'n/a'), s.get('lines', 'n/a'))}"
     )
     if s.get("same_count"):
         counts += "; every seating showed the same count (resolution term kept)"

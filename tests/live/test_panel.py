@@ -5,6 +5,7 @@ from __future__ import annotations
 import io
 import re
 
+import pytest
 from rich.console import Console
 
 from logger.analysis.seating import Seating
@@ -56,6 +57,13 @@ def test_one_name_for_what_is_still_to_go_on_the_panel_and_the_end_lines():
 
 def test_the_status_is_said_once():
     assert result_lines(SUMMARY)[0] == "ok: Measured."
+
+
+@pytest.mark.parametrize("bad, words", [(0, "0 bad lines of 900"), (1, "1 bad line of 900"),
+                                        (2, "2 bad lines of 900")])
+def test_the_end_lines_count_bad_lines_in_good_english(bad, words):
+    (counts,) = [x for x in result_lines(dict(SUMMARY, bad_lines=bad)) if x.startswith("seatings:")]
+    assert counts.endswith(f"; {words}")
 
 
 def test_block_digits_grow_with_the_panel_and_always_fit():
