@@ -1,4 +1,4 @@
-"""Error types that the command line turns into one clear line and exit status 2."""
+"""Error types that the command line turns into one clear line and an exit status (2 for what the user can fix)."""
 
 
 class UserError(Exception):
@@ -10,6 +10,16 @@ class UserError(Exception):
     """
 
     exit_status = 2
+
+
+class Stopped(Exception):
+    """A stop (Ctrl-C, SIGTERM) ended a command before its job was done; what it wrote is complete.
+
+    Not an error to fix and not a normal end: the command line prints the
+    message on one line and exits with `exit_status` 1.
+    """
+
+    exit_status = 1
 
 
 class DeviceGone(Exception):

@@ -6,8 +6,9 @@ import click
 
 from logger.cli.options import NON_NEGATIVE, POSITIVE, analysis_options, terminal_watchers, view_option
 from logger.cli.stand import stand_options, stand_watchers
-from logger.live.capture import Stop, capture
+from logger.live.capture import capture
 from logger.live.present import result_lines
+from logger.live.stop import Stop
 
 
 @click.command("capture")

@@ -11,9 +11,9 @@ import click
 
 from logger.cli.options import terminal_watchers, view_option
 from logger.cli.stand import stand_options, stand_watchers
-from logger.live.capture import Stop
 from logger.live.demo import demo_device, device_words, run_demo
 from logger.live.present import result_lines
+from logger.live.stop import Stop
 from logger.run.columns import RECORDING_FILE, REPORT_PICTURE, REPORT_TEXT
 
 

@@ -13,7 +13,7 @@ import sys
 import click
 
 from logger import __version__
-from logger.errors import UserError
+from logger.errors import Stopped, UserError
 
 EXIT_USER_ERROR = 2
 
@@ -86,6 +86,9 @@ class SaglogGroup(click.Group):
         except click.ClickException as exc:
             click.echo(f"saglog: error: {exc.format_message()}", err=True)
             sys.exit(EXIT_USER_ERROR)
+        except Stopped as exc:  # Ctrl-C or SIGTERM before the job was done, its files complete
+            click.echo(f"saglog: {exc}", err=True)
+            sys.exit(exc.exit_status)
         except UserError as exc:  # its own exit status: 2, or 3 for a device that never appeared
             click.echo(f"saglog: error: {exc}", err=True)
             sys.exit(exc.exit_status)

@@ -7,6 +7,7 @@ import click
 from logger.cli.options import POSITIVE, analysis_options
 from logger.live.present import result_lines
 from logger.live.replay import replay_file
+from logger.live.stop import Stop
 
 
 @click.command("replay")
@@ -20,9 +21,11 @@ def replay_cmd(recording, out_dir, rate_hz, force, profile, run_settings):
     """Run the whole analysis on a recording (REC) and write the run folder.
 
     Use it to re-analyse an old run with other thresholds or another
-    rejection method: the recording is never changed.
+    rejection method: the recording is never changed.  Ctrl-C or SIGTERM
+    stops it early with the run of the lines read so far, whole, in the run
+    folder (exit status 1).
     """
-    summary = replay_file(recording, profile, run_settings, out_dir, rate_hz, force)
+    summary = replay_file(recording, profile, run_settings, out_dir, rate_hz, force, stop=Stop.on_signals())
     for line in result_lines(summary):
         click.echo(line)
     click.echo(f"run folder: {out_dir}")

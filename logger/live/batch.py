@@ -29,6 +29,7 @@ from logger.analysis.batch_seating import BAD_CODE, detect_block
 from logger.formats.batch_decode import decode_block
 from logger.formats.recording import block_records, record_blocks
 from logger.live.pipeline import Pipeline
+from logger.live.stop import NEVER
 from logger.run.block_rows import block_rows
 from logger.run.writer import RunWriter
 
@@ -37,19 +38,28 @@ _COMMENT_LINE = re.compile(rb"^#[^\n]*(?:\n|$)", re.MULTILINE)
 
 
 def feed_recording(p: Path, f, first: bytes | None, lineno: int, pipeline: Pipeline, writer: RunWriter,
-                   on_comment: Callable[[str], None]) -> None:
-    """Every record of an open recording into `pipeline`, whose only listener is `writer`."""
+                   on_comment: Callable[[str], None], stop=NEVER) -> bool:
+    """Every record of an open recording into `pipeline` (`writer` its one listener); True if a `stop` cut it short.
+
+    A stop is looked at before each block and each line taken one by one,
+    so what has been fed when it ends is a whole prefix of the records.
+    """
     with f, RowsBehind(writer) as rows:
         for data in record_blocks(f, first, BLOCK_BYTES):
             for part in _around_comments(data):
+                if stop.requested:
+                    return True
                 block = None if part[:1] == b"#" else decode_block(part, pipeline.decoder.parse)
                 if block is None:
                     rows.wait()  # the rows before these first: they go to the same files
                     for t_s, raw, text in block_records(p, part, lineno, on_comment):
+                        if stop.requested:
+                            return True
                         pipeline.line(t_s, raw, text)
                 else:
                     _feed_block(block, pipeline, rows)
                 lineno += part.count(b"\n") + (not part.endswith(b"\n"))
+    return False
 
 
 class RowsBehind:

@@ -14,9 +14,6 @@ from __future__ import annotations
 
 import contextlib
 import math
-import select
-import signal
-import socket
 import time
 from pathlib import Path
 from typing import Sequence
@@ -29,6 +26,7 @@ from logger.formats.recording import RecWriter, end_comment, escape, gap_comment
 from logger.live.listener import Listener
 from logger.live.opening import FirstLine
 from logger.live.pipeline import Pipeline, RunSettings
+from logger.live.stop import Stop
 from logger.run.columns import RECORDING_FILE
 from logger.run.writer import RunWriter, prepare_folder
 from logger.transport.serial_source import SerialSource, can_gather
@@ -56,58 +54,6 @@ class NeverAppeared(UserError):
     """The device was not there at the start and did not come within the wait."""
 
     exit_status = 3
-
-
-class Stop:
-    """Set by SIGINT/SIGTERM (or `requested = True` from another thread); the loop checks it between blocks.
-
-    Setting it also makes the stop readable (`fileno()`), and so does a
-    signal (the interpreter's wakeup fd): a capture asleep on an idle port,
-    or letting lines gather, wakes at once.  A socket pair, not a pipe: on
-    Windows the wakeup fd must be a socket.
-    """
-
-    def __init__(self):
-        self._requested = False
-        self._wake, self._poke = socket.socketpair()
-        self._wake.setblocking(False)
-        self._poke.setblocking(False)
-
-    def fileno(self) -> int:
-        """Readable once a stop is asked for (or a signal came): for select, beside the port."""
-        return self._wake.fileno()
-
-    def drain(self) -> None:
-        with contextlib.suppress(OSError):  # empty: another reader drained it
-            self._wake.recv(512)
-
-    def sleep(self, s: float) -> None:
-        """Up to `s` seconds, less when a stop is asked for (or a signal comes) meanwhile."""
-        if s > 0 and not self._requested and select.select([self._wake], [], [], s)[0]:
-            self.drain()
-
-    @property
-    def requested(self) -> bool:
-        return self._requested
-
-    @requested.setter
-    def requested(self, value: bool) -> None:
-        self._requested = bool(value)
-        if value:
-            with contextlib.suppress(OSError):  # full: a wake-up is already waiting
-                self._poke.send(b"!")
-
-    def __call__(self, signum, frame):
-        self._requested = True  # the signal itself has already made the stop readable
-
-    @classmethod
-    def on_signals(cls) -> "Stop":
-        """A Stop that Ctrl-C (SIGINT) and SIGTERM set: every command that captures ends the same way."""
-        stop = cls()
-        signal.set_wakeup_fd(stop._poke.fileno(), warn_on_full_buffer=False)
-        signal.signal(signal.SIGTERM, stop)
-        signal.signal(signal.SIGINT, stop)
-        return stop
 
 
 def _open_first(src: SerialSource, wait_s: float, stop: Stop, listeners: Sequence[Listener],

@@ -14,9 +14,10 @@ from typing import Sequence
 
 from logger.analysis.seating import DetectorSettings
 from logger.analysis.session import AnalysisSettings
-from logger.live.capture import Stop, capture
+from logger.live.capture import capture
 from logger.live.listener import Listener
 from logger.live.pipeline import RunSettings
+from logger.live.stop import Stop
 from logger.simulator import PtyServer, load_scenario, simulate, virtual_device
 
 DEMO_SCENARIO = "demo-150-f8-fine"

@@ -7,24 +7,28 @@ from pathlib import Path
 from typing import Sequence
 
 from logger.config.profile import Profile
-from logger.errors import UserError
+from logger.errors import Stopped, UserError
 from logger.live.listener import Listener
 from logger.live.pipeline import Pipeline, RunSettings
 from logger.formats.recording import (is_recording, open_recording, parse_event, parse_partial, read_plain,
                                       read_recording)
 from logger.live.batch import feed_recording
+from logger.live.stop import NEVER
 from logger.run.writer import RunWriter, prepare_folder
 
 
 def replay_file(path: str | Path, profile: Profile, settings: RunSettings, out_dir: str | Path,
                 rate_hz: float | None = None, force: bool = False, listeners: Sequence[Listener] = (),
-                batch: bool = True) -> dict:
+                batch: bool = True, stop=NEVER) -> dict:
     """Replay a .rec recording (or a plain capture at `rate_hz`) into `out_dir`; returns the summary.
 
     A malformed record stops the replay with a UserError, after everything
     before it has been analysed and written.  With no other listeners than
     the run folder, a recording goes the batch way (logger.live.batch: the
     same files, much faster); `batch=False`, or any listener, line by line.
+    A `stop` asked for (logger.live.stop: Ctrl-C, SIGTERM) ends the
+    feeding between two blocks or lines: the run folder is then the whole
+    run of the lines fed so far, and Stopped is raised.
     """
     path = Path(path)
     if not path.is_file():
@@ -61,14 +65,20 @@ def replay_file(path: str | Path, profile: Profile, settings: RunSettings, out_d
     writer = RunWriter(out, start_wall, settings.as_dict(profile))
     pipeline = Pipeline(profile, settings, [writer, *listeners], start_wall, live=False)
     try:
-        if batch:
-            feed_recording(p, f, first, lineno, pipeline, writer, on_comment)
+        stopped = batch and feed_recording(p, f, first, lineno, pipeline, writer, on_comment, stop)
         for t_s, raw, text in records or ():
+            if stop.requested:  # looked at before each line: one asked for after the last is no stop
+                stopped = True
+                break
             pipeline.line(t_s, raw, text)
     except BaseException:
         # what came before is still analysed and written where it can be; the first error is the one to report
         with contextlib.suppress(UserError):
             pipeline.finish(end_s)
         raise
-    pipeline.finish(end_s)
-    return pipeline.summary
+    summary = pipeline.finish(end_s)
+    if stopped:
+        n = summary["lines"]
+        raise Stopped(f"replay stopped (Ctrl-C or SIGTERM) after {n:,} line{'' if n == 1 else 's'} of {path}; "
+                      f"{out} holds the whole run of {'it' if n == 1 else 'them'}")
+    return summary

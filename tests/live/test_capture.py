@@ -30,11 +30,12 @@ from tests.helpers.paths import EXAMPLE_PROFILE, ROOT
 from tests.helpers.stand import wait_for
 import logger.live.capture as capture_module
 from logger.config.profile import load_profile
-from logger.live.capture import Stop, capture
+from logger.live.capture import capture
 from logger.live.listener import Listener
 from logger.live.plainlog import PlainLog
 from logger.live.pipeline import RunSettings
 from logger.live.replay import replay_file
+from logger.live.stop import Stop
 from logger.analysis.seating import DetectorSettings
 from logger.analysis.session import AnalysisSettings
 from logger.cli.main import main

@@ -42,7 +42,8 @@ from benchmarks.feeder import Pacer, PtyDevice, session
 from tests.helpers.paths import EXAMPLE_PROFILE, ROOT, run_saglog, user_error
 from logger.cli.main import main
 from logger.live import batch
-from logger.live.capture import Stop, capture
+from logger.live.capture import capture
+from logger.live.stop import Stop
 from logger.formats.decode import Decoder, LineSplitter
 from logger.analysis.seating import State
 from logger.live.plainlog import PlainLog
