@@ -52,12 +52,14 @@ def write_atomic(path: Path, data: str | bytes) -> None:
             os.fsync(dir_fd)
         finally:
             os.close(dir_fd)
-    except OSError as exc:
+    except BaseException as exc:  # a full disk, or Ctrl-C in a report: no half-written temporary left behind
         try:
-            tmp.unlink(missing_ok=True)  # no half-written temporary left behind on a full disk
+            tmp.unlink(missing_ok=True)
         except OSError:
             pass
-        raise cannot_write(path, exc, f"earlier files in {path.parent} are kept") from None
+        if isinstance(exc, OSError):
+            raise cannot_write(path, exc, f"earlier files in {path.parent} are kept") from None
+        raise
 
 
 def without_nan(x):

@@ -49,6 +49,7 @@ from logger.analysis.seating import State
 from logger.live.plainlog import PlainLog
 from logger.cli.options import run_settings_from
 from logger.formats.recording import RecWriter
+from logger.run.writer import write_atomic
 from logger.live.replay import replay_file
 
 FAST = dict(seated_s=0.7, lifted_s=0.2, tau_s=0.03)  # short seatings, with --settle 0.2 s
@@ -486,6 +487,22 @@ def test_read_only_folder_from_the_start(tmp_path):
             dev.close()
         assert r.returncode == 2
         one_line_error(r.stderr, str(fs / "run2"))
+
+
+def test_an_interrupt_while_a_file_is_replaced_keeps_the_old_file_and_leaves_no_temporary(tmp_path, monkeypatch):
+    # Ctrl-C in `report` or `history` (KeyboardInterrupt) while report.png is being made durable: the
+    # moment between the temporary's write and its rename, where a half-replaced file could be left
+    target = tmp_path / "report.md"
+    target.write_text("the report before")
+
+    def interrupted(fd):
+        raise KeyboardInterrupt
+
+    monkeypatch.setattr(os, "fsync", interrupted)
+    with pytest.raises(KeyboardInterrupt):
+        write_atomic(target, "the new report")
+    assert target.read_text() == "the report before"
+    assert sorted(tmp_path.iterdir()) == [target]  # no .report.md.tmp left behind
 
 
 # --------------------------------------------------------------------------
