@@ -174,8 +174,9 @@ class Pipeline:
         if lines == 0:
             s.update(status="no readings", message="Nothing was received.")
         elif self.decoder.good == 0:
-            s.update(status="no readings", message=f"All {lines} lines were bad lines (no reading in them): "
-                                                   "check the baud rate and the cable.")
+            said = ("The one line received was a bad line (no reading in it)" if lines == 1
+                    else f"All {lines} lines were bad lines (no reading in them)")
+            s.update(status="no readings", message=f"{said}: check the baud rate and the cable.")
         return s
 
     def _seating(self, seating: Seating) -> None:

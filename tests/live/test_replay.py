@@ -7,6 +7,7 @@ import math
 
 import numpy as np
 import pandas as pd
+import pytest
 from click.testing import CliRunner
 
 from tests.helpers.paths import EXAMPLE_PROFILE, SAMPLE_STREAMS, run_saglog
@@ -53,16 +54,20 @@ def test_replay_twice_gives_identical_files(tmp_path):
     assert pd.to_datetime(seatings["start"]).dt.tz is not None  # ISO 8601 UTC
 
 
-def test_all_garbage_is_counted_and_explained(tmp_path):
+@pytest.mark.parametrize("n, said", [(500, "All 500 lines were bad lines (no reading in them)"),
+                                     (1, "The one line received was a bad line (no reading in it)")])
+def test_all_garbage_is_counted_and_explained(tmp_path, n, said):
     rec = tmp_path / "g.rec"
     w = RecWriter(rec, START)
-    for i in range(500):
+    for i in range(n):
         w.write(i * 0.01, bytes([0xFF, 0x00, 0x80 + i % 50]))
     w.close()
     r = CliRunner().invoke(main, ["replay", str(rec), "--profile", str(EXAMPLE_PROFILE), "--out", str(tmp_path / "o")])
     assert r.exit_code == 0
     s = json.loads((tmp_path / "o" / "summary.json").read_text())
-    assert s["status"] == "no readings" and s["bad_lines"] == 500 and "baud" in s["message"]
+    assert s["status"] == "no readings" and s["bad_lines"] == n
+    assert s["message"] == f"{said}: check the baud rate and the cable."
+    assert f"{n} bad line{'s' if n > 1 else ''} of {n}" in r.stdout
 
 
 def test_a_malformed_record_exits_2_and_keeps_what_came_before(tmp_path):
