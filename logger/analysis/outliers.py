@@ -71,15 +71,28 @@ def scale_floor(step_mm: float, within_sd_mm: float, residuals_mm=()) -> float:
     return max(effective_step, FLOOR_POOLED_MADS * pooled, FLOOR_LEAST_COUNTS * step_mm)
 
 
+def _places_apart(larger: float, smaller: float, places: int) -> int:
+    """The fewest decimal places, from `places` up, at which |larger| still reads larger than |smaller|.
+
+    A reason shows a score beside its cut; rounded to fixed places, a score
+    just past the cut would read as the cut itself ("modified z = -3.5
+    beyond 3.5"), and a reason must show why at a glance.
+    """
+    while places < 12 and not abs(round(larger, places)) > abs(round(smaller, places)):
+        places += 1
+    return places
+
+
 def modified_z(values, floor: float, cut: float = 3.5):
     x = np.asarray(values, float)
     med = float(np.median(x))
     mad = max(float(np.median(np.abs(x - med))), floor)
     scores = MAD_TO_Z * (x - med) / mad
-    return [
-        (bool(abs(m) > cut), float(m), f"outlier: modified z = {m:+.1f} beyond {cut:g}" if abs(m) > cut else "")
-        for m in scores
-    ]
+    return [(bool(abs(m) > cut), float(m), _z_reason(float(m), cut) if abs(m) > cut else "") for m in scores]
+
+
+def _z_reason(m: float, cut: float) -> str:
+    return f"outlier: modified z = {m:+.{_places_apart(m, cut, 1)}f} beyond {cut:g}"
 
 
 def _grubbs_critical(n: int, alpha: float) -> float:
@@ -101,7 +114,8 @@ def grubbs(values, floor: float, alpha: float = 0.05):
             for i, d in zip(live, dev):
                 out[i] = (False, float(d), "")
             break
-        out[live[j]] = (True, g, f"outlier: Grubbs G = {g:.2f} beyond {crit:.2f}")
+        p = _places_apart(g, crit, 2)
+        out[live[j]] = (True, g, f"outlier: Grubbs G = {g:.{p}f} beyond {crit:.{p}f}")
         live.pop(j)
     return out
 
@@ -114,7 +128,8 @@ def chauvenet(values, floor: float):
     z = np.abs(x - mean) / sd
     expected = len(x) * 2 * stats.norm.sf(z)
     return [
-        (bool(e < 0.5), float(zi), f"outlier: Chauvenet, {e:.2f} such seatings expected" if e < 0.5 else "")
+        (bool(e < 0.5), float(zi),
+         f"outlier: Chauvenet, {e:.{_places_apart(0.5, e, 2)}f} such seatings expected" if e < 0.5 else "")
         for zi, e in zip(z, expected)
     ]
 

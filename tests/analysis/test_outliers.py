@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+import re
 
 import numpy as np
 import pytest
@@ -31,6 +32,38 @@ def test_modified_z_against_scipy_mad(values, floor):
     for (rej, score, reason), e in zip(got, expected):
         assert math.isclose(score, e, rel_tol=1e-9, abs_tol=1e-12)
         assert rej == (abs(e) > 3.5) and bool(reason) == rej
+
+
+def _numbers(reason: str) -> list[float]:
+    return [float(t) for t in re.findall(r"[-+]?\d+\.?\d*(?:e[-+]?\d+)?", reason)]
+
+
+@settings(max_examples=200, deadline=None)
+@given(st.lists(st.floats(-1, 1, allow_nan=False), min_size=3, max_size=30), st.floats(1e-6, 1e-2),
+       st.sampled_from(["modified-z", "grubbs", "chauvenet"]), st.floats(1.5, 4.0))
+def test_a_rejection_reason_reads_as_beyond_its_cut(values, floor, method, z_cut):
+    # a score just past its cut, rounded to fixed places, read as the cut itself ("modified z = -3.5
+    # beyond 3.5"): the reason's own numbers must show the rejection
+    limit = z_cut if method == "modified-z" else None
+    for rejected, _, reason in judge(values, method, floor, limit):
+        if not rejected:
+            continue
+        if method == "chauvenet":  # rejected when fewer than 1/2 such seatings are expected
+            (expected,) = _numbers(reason)
+            assert expected < 0.5, reason
+        else:
+            score, cut = _numbers(reason.split("=", 1)[1])
+            assert abs(score) > cut, reason
+
+
+@pytest.mark.parametrize("method, limit, values, words", [
+    # a seating 3.528 modified z out (the MAD floored at 0.001: 0.6745 * 0.00523 / 0.001): past 3.5 only in
+    # the second place
+    ("modified-z", 3.5, [0.0, 0.0, 0.0, 0.001, -0.001, -0.00523], "modified z = -3.53 beyond 3.5"),
+])
+def test_a_score_just_past_its_cut_gets_the_places_that_show_it(method, limit, values, words):
+    reasons = [r for rejected, _, r in judge(values, method, 0.001, limit) if rejected]
+    assert reasons == [f"outlier: {words}"]
 
 
 def test_identical_quantised_seatings_are_not_outliers():
