@@ -21,8 +21,8 @@ import os
 import time
 from pathlib import Path
 
-from logger.run.columns import (SAMPLES_COLUMNS, SAMPLES_FILE, SEATINGS_COLUMNS, SEATINGS_FILE, SETTINGS_FILE,
-                                SUMMARY_FILE)
+from logger.run.columns import (REPORT_PICTURE, REPORT_TEXT, SAMPLES_COLUMNS, SAMPLES_FILE, SEATINGS_COLUMNS,
+                                SEATINGS_FILE, SETTINGS_FILE, SUMMARY_FILE)
 from logger.errors import UserError, cannot_write
 from logger.live.listener import Listener, Sample
 from logger.run.rows import csv_text, sample_head, sample_tail
@@ -79,12 +79,24 @@ def json_text(obj) -> str:
 
 
 def prepare_folder(out_dir: str | Path, force: bool = False) -> Path:
-    """Create the run folder; refuse to mix a new run into an old one unless forced."""
+    """Create the run folder; refuse to mix a new run into an old one unless forced.
+
+    Forced, the old run's files are replaced as the new run writes them,
+    and its report (report.png, report.md: drawn from the old run) is
+    removed, so that nothing in the folder describes another run.  A
+    recording there is kept: it may be the one being replayed.
+    """
     out = Path(out_dir)
     if out.exists() and not out.is_dir():
         raise UserError(f"{out}: exists and is not a folder")
-    if out.is_dir() and (out / SUMMARY_FILE).exists() and not force:
-        raise UserError(f"{out}: already holds a run ({SUMMARY_FILE}); choose another --out or pass --force")
+    if out.is_dir() and (out / SUMMARY_FILE).exists():
+        if not force:
+            raise UserError(f"{out}: already holds a run ({SUMMARY_FILE}); choose another --out or pass --force")
+        for name in (REPORT_PICTURE, REPORT_TEXT):
+            try:
+                (out / name).unlink(missing_ok=True)
+            except OSError as exc:
+                raise UserError(f"{out / name}: cannot remove the old run's report ({exc.strerror or exc})") from None
     try:
         out.mkdir(parents=True, exist_ok=True)
     except OSError as exc:

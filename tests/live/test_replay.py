@@ -103,6 +103,23 @@ def test_an_existing_run_is_not_overwritten(tmp_path):
     assert r.returncode == 2 and "--force" in r.stderr
 
 
+def test_a_forced_replay_leaves_nothing_of_the_old_run(tmp_path):
+    # the old run's report describes the old run: after --force only the new run's files, and the
+    # recording being replayed (here the folder's own stream.rec) is kept
+    run = tmp_path / "run"
+    run.mkdir()
+    write_session(run / "stream.rec")
+    assert run_saglog("replay", run / "stream.rec", "--profile", EXAMPLE_PROFILE, "--out", run).returncode == 0
+    assert run_saglog("report", run).returncode == 0
+    assert (run / "report.png").exists() and (run / "report.md").exists()
+    r = run_saglog("replay", run / "stream.rec", "--profile", EXAMPLE_PROFILE, "--out", run, "--force",
+                   "--rejection", "grubbs")
+    assert r.returncode == 0, r.stderr
+    assert sorted(p.name for p in run.iterdir()) == ["samples.csv", "seatings.csv", "settings.json", "stream.rec",
+                                                     "summary.json"]
+    assert json.loads((run / "summary.json").read_text())["rejection"] == "grubbs"
+
+
 def test_impossible_or_non_finite_options_are_refused_before_anything_runs(tmp_path):
     rec = tmp_path / "s.rec"
     write_session(rec)
