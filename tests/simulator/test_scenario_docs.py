@@ -25,3 +25,28 @@ def test_streams_md_names_the_poll_period_by_its_option():
     for named in re.findall(r"`(--[a-z-]+)", STREAMS):  # every option the page names is one of theirs
         assert named in options, named
     assert "`--poll-every S`" in STREAMS and "poll_interval_s" not in STREAMS
+
+
+def test_the_sample_streams_table_names_the_profile_each_was_read_with(tmp_path):
+    # sample_streams/README.md tells which profile to replay each stream with; it must be the one the
+    # scenario was simulated with, and replayed with it the radius must come within U of the
+    # simulator's true radius (the truth file, from the exact ball-on-sphere construction)
+    import json
+    import tomllib
+
+    from logger.config.profile import load_profile
+    from logger.live.replay import replay_file
+    from tests.live.test_faults import fresh_settings
+
+    table = (ROOT / "sample_streams" / "README.md").read_text()
+    rows = dict(re.findall(r"^\| ([a-z0-9-]+) \| .* \| ([a-z0-9-]+) \|$", table, re.MULTILINE))
+    shipped = sorted(p.stem for p in (ROOT / "sample_streams").glob("*.rec"))
+    assert sorted(rows) == shipped
+    for name, profile_name in rows.items():
+        scenario = tomllib.loads((ROOT / "logger" / "simulator" / "scenarios" / f"{name}.toml").read_text())
+        assert scenario["profile"] == profile_name, name
+        profile = load_profile(profile_name)
+        summary = replay_file(ROOT / "sample_streams" / f"{name}.rec", profile, fresh_settings(profile),
+                              tmp_path / name)
+        truth = json.loads((ROOT / "sample_streams" / f"{name}.truth.json").read_text())
+        assert abs(summary["radius_mm"] - truth["radius_mm"]) <= summary["radius_U_mm"], name
