@@ -16,10 +16,15 @@ class Stopped(Exception):
     """A stop (Ctrl-C, SIGTERM) ended a command before its job was done; what it wrote is complete.
 
     Not an error to fix and not a normal end: the command line prints the
-    message on one line and exits with `exit_status` 1.
+    message on one line and exits with `exit_status` 1.  `summary` is the
+    result of what was done, for the command to show first.
     """
 
     exit_status = 1
+
+    def __init__(self, message: str, summary: dict | None = None):
+        super().__init__(message)
+        self.summary = summary
 
 
 class DeviceGone(Exception):

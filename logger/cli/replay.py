@@ -5,6 +5,7 @@ from __future__ import annotations
 import click
 
 from logger.cli.options import POSITIVE, analysis_options
+from logger.errors import Stopped
 from logger.live.present import result_lines
 from logger.live.replay import replay_file
 from logger.live.stop import Stop
@@ -25,7 +26,15 @@ def replay_cmd(recording, out_dir, rate_hz, force, profile, run_settings):
     stops it early with the run of the lines read so far, whole, in the run
     folder (exit status 1).
     """
-    summary = replay_file(recording, profile, run_settings, out_dir, rate_hz, force, stop=Stop.on_signals())
+    try:
+        summary = replay_file(recording, profile, run_settings, out_dir, rate_hz, force, stop=Stop.on_signals())
+    except Stopped as stopped:  # the result of the lines read so far, then the one line that says it stopped
+        _show(stopped.summary, out_dir)
+        raise
+    _show(summary, out_dir)
+
+
+def _show(summary: dict, out_dir) -> None:
     for line in result_lines(summary):
         click.echo(line)
     click.echo(f"run folder: {out_dir}")

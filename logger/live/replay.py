@@ -80,5 +80,5 @@ def replay_file(path: str | Path, profile: Profile, settings: RunSettings, out_d
     if stopped:
         n = summary["lines"]
         raise Stopped(f"replay stopped (Ctrl-C or SIGTERM) after {n:,} line{'' if n == 1 else 's'} of {path}; "
-                      f"{out} holds the whole run of {'it' if n == 1 else 'them'}")
+                      f"{out} holds the whole run of {'it' if n == 1 else 'them'}", summary)
     return summary

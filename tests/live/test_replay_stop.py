@@ -12,6 +12,7 @@ line); through the command line it is a real SIGINT to a real process.
 from __future__ import annotations
 
 import json
+import re
 import signal
 import subprocess
 import sys
@@ -111,5 +112,7 @@ def test_ctrl_c_at_the_command_line_stops_a_replay_with_its_run_whole(tmp_path, 
     assert stderr.startswith("saglog: replay stopped (Ctrl-C or SIGTERM) after ") and str(out) in stderr
     lines = assert_whole_run_of_its_lines(rec, out, tmp_path, profile)
     assert 0 < lines < len(stream.lines)
+    # stdout first shows the result of those lines, as a capture's Ctrl-C does
+    assert re.search(rf"bad lines? of {lines}\n", stdout) and stdout.rstrip().endswith(f"run folder: {out}")
     # what a user then does with it: the stopped run folder reports like any other
     assert run_saglog("report", out).returncode == 0
