@@ -58,8 +58,9 @@ def replay_file(path: str | Path, profile: Profile, settings: RunSettings, out_d
     elif rate_hz is None:
         raise UserError(f"{path}: not a saglog recording; for a plain capture give --rate HZ")
     else:
-        records, start_wall, batch = read_plain(path, rate_hz), 0.0, False
-        source = {"plain_capture": str(path), "rate_hz": rate_hz}
+        records, start_wall, batch = read_plain(path, rate_hz), _plain_start_wall(path, rate_hz), False
+        source = {"plain_capture": str(path), "rate_hz": rate_hz,
+                  "start": "the last line at the file's modification time"}
     settings.source = source
     out = prepare_folder(out_dir, force)
     writer = RunWriter(out, start_wall, settings.as_dict(profile))
@@ -82,3 +83,14 @@ def replay_file(path: str | Path, profile: Profile, settings: RunSettings, out_d
         raise Stopped(f"replay stopped (Ctrl-C or SIGTERM) after {n:,} line{'' if n == 1 else 's'} of {path}; "
                       f"{out} holds the whole run of {'it' if n == 1 else 'them'}", summary)
     return summary
+
+
+def _plain_start_wall(path: Path, rate_hz: float) -> float:
+    """When a plain capture began: it holds no clock, but it was last written as its last line came.
+
+    So the last line is put at the file's modification time, and the
+    first (n - 1) / rate before it; to the microsecond, as recordings keep
+    times.  (A copy that did not keep the time moves the run, not its result.)
+    """
+    n = sum(1 for _ in read_plain(path, rate_hz))
+    return round(path.stat().st_mtime - max(n - 1, 0) / rate_hz, 6)

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 import math
+import os
 
 import numpy as np
 import pandas as pd
@@ -90,9 +91,17 @@ def test_plain_capture_needs_a_rate(tmp_path):
     raw.write_bytes(b"".join(b"%+.3f\r\n" % v for v in [-1.5] * 50 + [0.0] * 100 + [-1.5] * 50))
     r = run_saglog("replay", raw, "--profile", EXAMPLE_PROFILE, "--out", tmp_path / "o")
     assert r.returncode == 2 and "--rate" in r.stderr
+    # it holds no clock: its last line is put at the file's modification time, 2026-03-12T10:00:00Z
+    # (an invented session), and the 200 lines at 50 lines/s before it, so the run began 3.98 s earlier
+    os.utime(raw, (1773309600.0, 1773309600.0))
     r = run_saglog("replay", raw, "--profile", EXAMPLE_PROFILE, "--out", tmp_path / "o", "--rate", 50)
     assert r.returncode == 0, r.stderr
-    assert json.loads((tmp_path / "o" / "summary.json").read_text())["seatings_flat"] == 1
+    summary = json.loads((tmp_path / "o" / "summary.json").read_text())
+    assert summary["seatings_flat"] == 1
+    assert summary["started_utc"] == "2026-03-12T09:59:56.020000Z"
+    samples = pd.read_csv(tmp_path / "o" / "samples.csv")
+    assert samples["time"].iloc[0] == "2026-03-12T09:59:56.020000Z"
+    assert samples["time"].iloc[-1] == "2026-03-12T10:00:00.000000Z"
 
 
 def test_an_existing_run_is_not_overwritten(tmp_path):
