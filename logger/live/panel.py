@@ -15,7 +15,7 @@ from rich.panel import Panel
 from rich.table import Table
 from rich.text import Text
 
-from logger.live.present import length_text
+from logger.live.present import length_text, to_go, to_go_words
 from logger.live.status import RunStatus
 from logger.units import from_mm
 
@@ -131,10 +131,11 @@ class LivePanel(RunStatus):
         fr = s.get("focal_ratio")
         t.add_row("focal length", length_text(s.get("focal_length_mm"), u, 1) + (f"   f/{fr:.2f}" if fr else ""))
         if s.get("target_radius_mm") is not None:
-            t.add_row("still to go", f"radius {length_text(s.get('radius_to_go_mm'), u, 1)}, "
-                                     f"sagitta {length_text(s.get('sagitta_to_go_mm'), u, 5)} (as this spherometer reads)")
+            words, depth_words = to_go_words(s)
+            t.add_row(words, f"radius {length_text(to_go(s, 'radius_to_go_mm'), u, 1)}, "
+                             f"sagitta {length_text(to_go(s, 'sagitta_to_go_mm'), u, 5)} (as this spherometer reads)")
             if s.get("depth_to_go_mm") is not None:
-                t.add_row("depth still to grind", f"{length_text(s['depth_to_go_mm'], u, 4)} +- "
-                                                  f"{length_text(s.get('depth_to_go_U_mm'), u, 4)} at the centre (sphere)")
+                t.add_row(depth_words, f"{length_text(to_go(s, 'depth_to_go_mm'), u, 4)} +- "
+                                       f"{length_text(s.get('depth_to_go_U_mm'), u, 4)} at the centre (sphere)")
         return Panel(Group(Text(big, style="bold"), Text(f"radius of curvature [{u}]"), t),
                      title=f"saglog  {self.device}", border_style="bold")

@@ -13,6 +13,25 @@ def length_text(x_mm, unit: str, digits: int = 4) -> str:
     return f"{from_mm(x_mm, unit) + 0.0:.{d}f} {unit}".replace(f"-{0:.{d}f} ", f"{0:.{d}f} ")
 
 
+def to_go(summary: dict, key: str) -> float | None:
+    """A `*_to_go_mm` of the summary as shown beside `to_go_words`: without its sign once past the target."""
+    x = summary.get(key)
+    return abs(x) if x is not None and past_target(summary) else x
+
+
+def past_target(summary: dict) -> bool:
+    """Ground past the target radius (radius_to_go_mm < 0; the sagitta's and the depth's go with it)."""
+    x = summary.get("radius_to_go_mm")
+    return x is not None and x < 0
+
+
+def to_go_words(summary: dict) -> tuple[str, str]:
+    """What the radius and sagitta beside it are, and what the depth is: ahead of the target or past it."""
+    if past_target(summary):
+        return "past the target by", "depth ground past the target"
+    return "still to go", "depth still to grind"
+
+
 def bad_lines_words(bad, lines) -> str:
     """The summary's line counts in words: '1 bad line of 601', '0 bad lines of 1146' (either may be 'n/a')."""
     return f"{bad} bad line{'' if bad == 1 else 's'} of {lines}"
@@ -49,11 +68,12 @@ def result_lines(summary: dict) -> list[str]:
                    f"{length_text(summary['flat_error_u_mm'], unit, 5)} over the ring (standard; negative: hollow)")
     if summary.get("calibration_note"):
         out.append(f"calibration: {summary['calibration_note']}")
+    words, depth_words = to_go_words(summary)
     if summary.get("target_radius_mm") is not None and summary.get("radius_to_go_mm") is not None:
         out.append(f"target radius {length_text(summary['target_radius_mm'], unit, 1)}: "
-                   f"radius still to go {length_text(summary['radius_to_go_mm'], unit, 1)}, "
-                   f"sagitta still to go {length_text(summary['sagitta_to_go_mm'], unit, 5)}")
+                   f"radius {words} {length_text(to_go(summary, 'radius_to_go_mm'), unit, 1)}, "
+                   f"sagitta {words} {length_text(to_go(summary, 'sagitta_to_go_mm'), unit, 5)}")
     if summary.get("depth_to_go_mm") is not None:  # in the panel's words (logger/live/panel.py)
-        out.append(f"depth still to grind: {length_text(summary['depth_to_go_mm'], unit, 4)} +- "
+        out.append(f"{depth_words}: {length_text(to_go(summary, 'depth_to_go_mm'), unit, 4)} +- "
                    f"{length_text(summary.get('depth_to_go_U_mm'), unit, 4)} at the centre (sphere)")
     return out

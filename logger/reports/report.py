@@ -29,7 +29,7 @@ from logger.reports import plotstyle as ps
 from logger.reports.envelope import TraceEnvelope
 from logger.checks import is_number
 from logger.config.profile import Spherometer, profile_words
-from logger.live.present import bad_lines_words
+from logger.live.present import bad_lines_words, to_go, to_go_words
 from logger.run.columns import REPORT_PICTURE, REPORT_TEXT
 from logger.run.load import Run, load_run
 from logger.units import from_mm
@@ -107,9 +107,11 @@ def header_lines(run: Run, unit: str) -> list[str]:
         r_line += f"   f/{s['focal_ratio']:.2f}"
     target = ""
     if is_number(s.get("target_radius_mm")):
-        target = f"target R {fmt_len(s['target_radius_mm'], unit)}, radius still to go {fmt_len(s.get('radius_to_go_mm'), unit, 4)}"
+        words = to_go_words(s)[0]
+        target = (f"target R {fmt_len(s['target_radius_mm'], unit)}, "
+                  f"radius {words} {fmt_len(to_go(s, 'radius_to_go_mm'), unit, 4)}")
         if is_number(s.get("sagitta_to_go_mm")):
-            target += f", sagitta still to go {fmt_len(s['sagitta_to_go_mm'], unit, 4)}"
+            target += f", sagitta {words} {fmt_len(to_go(s, 'sagitta_to_go_mm'), unit, 4)}"
     drift = _num(s, "drift_mm_per_min")
     z_line = (
         f"sagitta s = {fmt_pm(s.get('sagitta_mm'), s.get('sagitta_u_mm'), unit)} (standard u)"

@@ -19,10 +19,10 @@ SUMMARY = dict(seatings_flat=4, seatings_surface=9, seatings_rejected=1, zero_mm
                message="Measured.", unit="mm", coverage_factor=2.1, lines=900, bad_lines=0)  # invented
 
 
-def _panel_text(width: int, last_phase: str | None = None) -> str:
+def _panel_text(width: int, last_phase: str | None = None, summary: dict = SUMMARY) -> str:
     console = Console(width=width, file=io.StringIO(), record=True, color_system=None)
     panel = LivePanel("mm", "test", console=console)
-    panel.summary = dict(SUMMARY)
+    panel.summary = dict(summary)
     if last_phase:
         panel.seating(Decision(Seating(14, 0.0, 1.0, 0.0, 0.0, 10), phase=last_phase), dict(SUMMARY))
     console.print(panel._render())
@@ -53,6 +53,22 @@ def test_one_name_for_what_is_still_to_go_on_the_panel_and_the_end_lines():
     (end,) = [x for x in result_lines(SUMMARY) if "to go" in x]
     assert "radius still to go 3.6 mm" in end and "sagitta still to go 0.00050 mm" in end
     assert "at the ring" not in text + end
+
+
+def test_past_the_target_is_said_in_words_not_by_a_minus_sign():
+    # ground 1.3 mm past a 2400 mm target (invented): every place says "past the target", unsigned
+    past = dict(SUMMARY, radius_mm=2398.7, radius_to_go_mm=-1.3, sagitta_to_go_mm=-0.00018,
+                depth_to_go_mm=-0.0006, depth_to_go_U_mm=0.0053)
+    text = _panel_text(120, summary=past)
+    assert re.search(r"past the target by\s+radius 1\.3 mm, sagitta 0\.00018 mm", text)
+    assert re.search(r"depth ground past the target\s+0\.0006 mm \+- 0\.0053 mm", text)
+    end = result_lines(past)
+    assert "target radius 2400.0 mm: radius past the target by 1.3 mm, sagitta past the target by 0.00018 mm" in end
+    assert "depth ground past the target: 0.0006 mm +- 0.0053 mm at the centre (sphere)" in end
+    assert "still to go" not in text + "\n".join(end) and "-1.3" not in text + "\n".join(end)
+    ahead = result_lines(dict(past, radius_to_go_mm=1.3, sagitta_to_go_mm=0.00018, depth_to_go_mm=0.0006))
+    assert "target radius 2400.0 mm: radius still to go 1.3 mm, sagitta still to go 0.00018 mm" in ahead
+    assert "depth still to grind: 0.0006 mm +- 0.0053 mm at the centre (sphere)" in ahead
 
 
 def test_the_status_is_said_once():

@@ -183,3 +183,25 @@ def test_the_end_lines_give_the_depth_still_to_grind_in_the_panels_words(tmp_pat
     (line,) = [x for x in r.output.splitlines() if x.startswith("depth still to grind")]
     assert line == f"depth still to grind: {depth:.4f} mm +- {depth_U:.4f} mm at the centre (sphere)"
     assert depth > 0.01  # a shorter target: glass still to come out
+
+
+def test_a_target_already_passed_is_said_so_with_the_distances_unsigned(tmp_path):
+    """The sample mirror (invented data, R about 2403 mm) against a 2450 mm target it has already passed:
+    the radius, the sagitta and the depth all say so (the same sphere relations as above, their signs
+    agreeing), and the end lines give the distances without a minus sign."""
+    out = tmp_path / "run"
+    r = CliRunner().invoke(main, ["replay", str(SAMPLE_STREAMS / "mirror-150-f8-rough.rec"), "--profile",
+                                  str(EXAMPLE_PROFILE), "--out", str(out), "--target-radius", "2450",
+                                  "--diameter", "150"])
+    assert r.exit_code == 0, r.output
+    s = json.loads((out / "summary.json").read_text())
+    h = 75.0
+    sag = lambda radius: radius - math.sqrt(radius * radius - h * h)  # noqa: E731
+    assert s["radius_to_go_mm"] == s["radius_mm"] - 2450.0 < 0
+    assert s["sagitta_to_go_mm"] < 0 and s["depth_to_go_mm"] < 0
+    assert math.isclose(s["depth_to_go_mm"], sag(2450.0) - sag(s["radius_mm"]), rel_tol=1e-9)
+    lines = r.output.splitlines()
+    (target,) = [x for x in lines if x.startswith("target radius")]
+    assert target.startswith(f"target radius 2450.0 mm: radius past the target by {-s['radius_to_go_mm']:.1f} mm")
+    (depth,) = [x for x in lines if x.startswith("depth ground past the target: ")]
+    assert depth.startswith(f"depth ground past the target: {-s['depth_to_go_mm']:.4f} mm")
