@@ -128,3 +128,32 @@ def test_the_page_follows_a_real_capture_seating_by_seating(browser, tmp_path):
             if proc.poll() is None:
                 proc.kill()
             proc.wait(10)
+
+
+def test_the_page_says_past_the_target_in_words(browser):
+    # an invented state ground 46.4 mm past a 2450 mm target, then one 3.6 mm short of 2400 mm: the
+    # captions follow, and the distances carry no sign (as the terminal's end lines and panel)
+    from logger.live.stand.address import WebAddress
+    from logger.live.stand.server import StandServer
+
+    read = ("const t = (id) => document.getElementById(id).textContent; "
+            "return ['togo-caption', 'togo-radius', 'togo-sagitta-caption', 'togo-sagitta', "
+            "'togo-depth-caption', 'togo-depth'].map(t);")
+    past = {"state": "lifted", "unit": "mm", "radius_mm": 2403.6, "radius_U_mm": 10.9, "target_radius_mm": 2450.0,
+            "radius_to_go_mm": -46.4, "sagitta_to_go_mm": -0.0011, "depth_to_go_mm": -0.0227,
+            "depth_to_go_U_mm": 0.0053, "seatings_flat": 4, "seatings_surface": 9, "seatings_rejected": 0}
+    server = StandServer(WebAddress("127.0.0.1", 0), None)
+    port = server.start()
+    try:
+        server.publish(past)
+        browser.get(f"http://127.0.0.1:{port}/")
+        shown = wait_for(lambda: (v := browser.execute_script(read))[1] != "\u2013" and v, 15, "the page to show it")
+        assert shown == ["radius past the target of 2450.0 mm", "46.4 mm", "sagitta past the target", "0.0011 mm",
+                         "depth ground past the target at the centre", "0.0227 \u00b1 0.0053 mm"]
+        server.publish(dict(past, radius_mm=2403.6, target_radius_mm=2400.0, radius_to_go_mm=3.6,
+                            sagitta_to_go_mm=0.0005, depth_to_go_mm=0.0018))
+        shown = wait_for(lambda: (v := browser.execute_script(read))[1] == "3.6 mm" and v, 15, "the page to follow")
+        assert shown == ["radius still to go to 2400.0 mm", "3.6 mm", "sagitta still to go", "0.0005 mm",
+                         "depth still to grind at the centre", "0.0018 \u00b1 0.0053 mm"]
+    finally:
+        server.stop()

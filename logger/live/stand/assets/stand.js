@@ -18,11 +18,6 @@ function length(mm, unit, digits) {
   return (unit === "in" ? mm / MM_PER_IN : mm).toFixed(d);
 }
 
-function signed(mm, unit, digits) {
-  const text = length(mm, unit, digits);
-  return mm > 0 ? "+" + text : text.replace("-", "\u2212");
-}
-
 function setText(id, text) {
   const el = $(id);
   if (el.textContent !== text) el.textContent = text;
@@ -38,12 +33,17 @@ function showResult(s, unit) {
   setText("focal", s.focal_length_mm == null ? "\u2013" : length(s.focal_length_mm, unit, 1) + " " + unit);
   setText("ratio", s.focal_ratio == null ? "\u2013" : "f/" + s.focal_ratio.toFixed(2));
   const target = s.target_radius_mm;
+  // once ground beyond the target the captions say so and the distances lose their sign, as in the terminal
+  const past = s.radius_to_go_mm != null && s.radius_to_go_mm < 0;
+  const away = (mm, digits) => mm == null ? "\u2013" : length(Math.abs(mm), unit, digits) + " " + unit;
   setText("togo-caption", target == null ? "radius still to go (no target)"
-    : "radius still to go to " + length(target, unit, 1) + " " + unit);
-  setText("togo-radius", s.radius_to_go_mm == null ? "\u2013" : signed(s.radius_to_go_mm, unit, 1) + " " + unit);
-  setText("togo-sagitta", s.sagitta_to_go_mm == null ? "\u2013" : signed(s.sagitta_to_go_mm, unit, 4) + " " + unit);
-  setText("togo-depth", s.depth_to_go_mm == null ? "\u2013" : signed(s.depth_to_go_mm, unit, 4) + " \u00b1 "
-    + length(s.depth_to_go_U_mm, unit, 4) + " " + unit);
+    : (past ? "radius past the target of " : "radius still to go to ") + length(target, unit, 1) + " " + unit);
+  setText("togo-sagitta-caption", past ? "sagitta past the target" : "sagitta still to go");
+  setText("togo-depth-caption", past ? "depth ground past the target at the centre" : "depth still to grind at the centre");
+  setText("togo-radius", away(s.radius_to_go_mm, 1));
+  setText("togo-sagitta", away(s.sagitta_to_go_mm, 4));
+  setText("togo-depth", s.depth_to_go_mm == null ? "\u2013" : length(Math.abs(s.depth_to_go_mm), unit, 4)
+    + " \u00b1 " + length(s.depth_to_go_U_mm, unit, 4) + " " + unit);
 }
 
 function show(s) {
