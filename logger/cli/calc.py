@@ -15,7 +15,7 @@ import click
 
 from logger.cli.options import NON_NEGATIVE, POSITIVE, profile_option
 from logger.analysis import geometry
-from logger.errors import UserError
+from logger.errors import UserError, already_exists
 from logger.config.profile import DEFAULT_U_MM, SENSES, load_profile, parse_profile
 from logger.run.writer import write_atomic
 from logger.analysis.uncertainty import (Component, radius_budget, reading_components, seatings_needed,
@@ -263,7 +263,7 @@ def new_profile(out_path, unit, outside, inside, centres, ball, probe_distances,
     stamp = datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
     text = profile_text(data, f"Written by saglog new-profile at {stamp} from {how}.")
     if out.exists() and not force:
-        raise UserError(f"{out}: already exists (use --force to replace it)")
+        raise already_exists(out)
     write_atomic(out, text)
     load_profile(out)  # what was written reads back
     profile = parse_profile(data)

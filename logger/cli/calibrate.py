@@ -22,7 +22,7 @@ from logger.analysis.calibration import Calibration, Reference, calibrate, sagit
 from logger.cli.calc import profile_text, toml_value
 from logger.cli.options import NON_NEGATIVE, POSITIVE, PROFILE_HELP
 from logger.config.profile import Indicator, Profile, Spherometer, load_profile, parse_profile
-from logger.errors import UserError
+from logger.errors import UserError, already_exists
 from logger.run.load import load_run
 from logger.run.writer import write_atomic
 from logger.units import from_mm, to_mm
@@ -184,7 +184,7 @@ def calibrate_cmd(run_dirs, reference_radius, reference_u, reference_surface, ou
                         "surfaces; calibration needs ball feet (three-ball or calibrated)")
     refs = [_reference(run, R, u, sf or None, profile) for run, R, u, sf in zip(runs, radii, us, surfaces)]
     if out.exists() and not force:
-        raise UserError(f"{out}: already exists (use --force to replace it)")
+        raise already_exists(out)
     cal = calibrate(refs, profile.contact_mm("concave")[1], profile.spherometer.u_mm.get("ball_diameter", 0.0))
     base = profile.name or Path(profile.source).stem or "spherometer"
     data = _profile_data(cal, profile, f"{base}, calibrated on {n} reference run(s)")
