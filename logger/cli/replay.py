@@ -14,7 +14,8 @@ from logger.live.stop import Stop
 @click.argument("recording", type=click.Path(dir_okay=False))
 @click.option("--out", "out_dir", required=True, type=click.Path(file_okay=False), metavar="DIR",
               help="The run folder to write (a folder, made if missing).")
-@click.option("--rate", "rate_hz", type=POSITIVE, default=None, help="Lines per second of a plain capture (no timestamps).")
+@click.option("--rate", "rate_hz", type=POSITIVE, default=None,
+              help="Lines per second of a plain capture (no timestamps); a .rec has its own times.")
 @click.option("--force", is_flag=True, help="Overwrite a run folder that already holds a run.")
 @analysis_options
 def replay_cmd(recording, out_dir, rate_hz, force, profile, run_settings):

@@ -4,15 +4,19 @@ from __future__ import annotations
 
 import json
 import math
+import os
 
 import numpy as np
 import pandas as pd
 import pytest
 from click.testing import CliRunner
 
-from tests.helpers.paths import EXAMPLE_PROFILE, SAMPLE_STREAMS, run_saglog
+from tests.helpers.paths import EXAMPLE_PROFILE, SAMPLE_STREAMS, run_saglog, user_error
+from tests.live.test_faults import fresh_settings
 from logger.cli.main import main
+from logger.errors import UserError
 from logger.formats.recording import RecWriter
+from logger.live.replay import replay_file
 
 START = 1_780_000_000.0
 
@@ -93,6 +97,27 @@ def test_plain_capture_needs_a_rate(tmp_path):
     r = run_saglog("replay", raw, "--profile", EXAMPLE_PROFILE, "--out", tmp_path / "o", "--rate", 50)
     assert r.returncode == 0, r.stderr
     assert json.loads((tmp_path / "o" / "summary.json").read_text())["seatings_flat"] == 1
+
+
+def test_a_recording_with_its_own_times_refuses_a_rate(tmp_path):
+    rec = tmp_path / "s.rec"
+    write_session(rec)
+    r = CliRunner().invoke(main, ["replay", str(rec), "--profile", str(EXAMPLE_PROFILE), "--out", str(tmp_path / "o"),
+                                  "--rate", "10"])
+    user_error(r, str(rec), "--rate is for a plain capture without times", "recording with its own times")
+    assert not (tmp_path / "o").exists()  # refused before the run folder was made
+
+
+def test_something_there_that_is_no_file_is_not_called_missing(tmp_path, profile):
+    fifo, folder = tmp_path / "fifo.rec", tmp_path / "folder.rec"
+    os.mkfifo(fifo)
+    folder.mkdir()
+    base = ["--profile", str(EXAMPLE_PROFILE), "--out", str(tmp_path / "o")]
+    user_error(CliRunner().invoke(main, ["replay", str(fifo), *base]), str(fifo), "not a regular file")
+    user_error(CliRunner().invoke(main, ["replay", str(tmp_path / "gone.rec"), *base]), "gone.rec: recording not found")
+    with pytest.raises(UserError, match="folder.rec: not a regular file"):  # the command line's REC refuses it first
+        replay_file(folder, profile, fresh_settings(profile), tmp_path / "o")
+    assert not (tmp_path / "o").exists()
 
 
 def test_an_existing_run_is_not_overwritten(tmp_path):
