@@ -11,7 +11,7 @@ from logger.live.stop import Stop
 
 
 @click.command("replay")
-@click.argument("recording", type=click.Path(dir_okay=False))
+@click.argument("recording", type=click.Path(dir_okay=False), metavar="REC")
 @click.option("--out", "out_dir", required=True, type=click.Path(file_okay=False), metavar="DIR",
               help="The run folder to write (a folder, made if missing).")
 @click.option("--rate", "rate_hz", type=POSITIVE, default=None,

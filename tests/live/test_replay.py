@@ -120,6 +120,12 @@ def test_something_there_that_is_no_file_is_not_called_missing(tmp_path, profile
     assert not (tmp_path / "o").exists()
 
 
+def test_the_help_calls_the_argument_what_the_usage_line_shows():
+    r = CliRunner().invoke(main, ["replay", "--help"])
+    arg = r.stdout.splitlines()[0].split()[-1]
+    assert arg == "REC" and f"a recording ({arg})" in r.stdout, arg  # REC: the contract's name for it
+
+
 def test_an_existing_run_is_not_overwritten(tmp_path):
     rec = tmp_path / "s.rec"
     write_session(rec)
