@@ -15,6 +15,7 @@ from logger.formats.recording import (is_recording, open_recording, parse_event,
 from logger.live.batch import feed_recording
 from logger.live.stop import NEVER
 from logger.run.writer import RunWriter, prepare_folder
+from logger.words import plural
 
 
 def replay_file(path: str | Path, profile: Profile, settings: RunSettings, out_dir: str | Path,
@@ -84,6 +85,6 @@ def replay_file(path: str | Path, profile: Profile, settings: RunSettings, out_d
     summary = pipeline.finish(end_s)
     if stopped:
         n = summary["lines"]
-        raise Stopped(f"replay stopped (Ctrl-C or SIGTERM) after {n:,} line{'' if n == 1 else 's'} of {path}; "
+        raise Stopped(f"replay stopped (Ctrl-C or SIGTERM) after {n:,} {plural(n, 'line')} of {path}; "
                       f"{out} holds the whole run of {'it' if n == 1 else 'them'}")
     return summary

@@ -243,8 +243,10 @@ def test_scenario_errors_name_the_file_and_key(tmp_path):
         load_scenario(p)
     with pytest.raises(UserError, match="no such scenario"):
         load_scenario("no-such-scenario")
-    with pytest.raises(UserError, match="unknown scenario field"):
+    with pytest.raises(UserError, match="unknown scenario field: colour$"):
         load_scenario("fast-1khz").with_overrides(colour="red")
+    with pytest.raises(UserError, match="unknown scenario fields: colour, size$"):
+        load_scenario("fast-1khz").with_overrides(size=3, colour="red")
 
 
 def test_scenario_in_inches_converts_lengths(tmp_path):
