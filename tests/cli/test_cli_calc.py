@@ -313,6 +313,9 @@ CMD_BAD = [
     (("plan", "--profile", EXAMPLE, "--diameter", "200", "--focal-ratio", "5", "--focal-length", "1000"),
      ["exactly one"]),
     (("plan", "--profile", EXAMPLE, "--diameter", "200", "--focal-ratio", "0.1"), ["--diameter", "too large"]),
+    # the 100 mm is the mirror's half-diameter (R = 2 f = 40 mm), not the spherometer's ring
+    (("plan", "--profile", EXAMPLE, "--diameter", "200", "--focal-ratio", "0.1"),
+     ["sphere of radius 40 mm cannot span an aperture of radius 100 mm, half the diameter"]),
     (("plan", "--profile", EXAMPLE, "--diameter", "20", "--focal-ratio", "0.6"), ["--focal-ratio", "too short"]),
     (("plan", "--profile", EXAMPLE, "--diameter", "200", "--focal-ratio", "5", "--scatter", "0.002"),
      ["--radius-u"]),
