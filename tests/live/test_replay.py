@@ -16,6 +16,7 @@ from tests.live.test_faults import fresh_settings
 from logger.cli.main import main
 from logger.errors import UserError
 from logger.formats.recording import RecWriter
+from logger.live.pipeline import Pipeline
 from logger.live.replay import replay_file
 
 START = 1_780_000_000.0
@@ -72,6 +73,24 @@ def test_all_garbage_is_counted_and_explained(tmp_path, n, said):
     assert s["status"] == "no readings" and s["bad_lines"] == n
     assert s["message"] == f"{said}: check the baud rate and the cable."
     assert f"{n} bad line{'s' if n > 1 else ''} of {n}" in r.stdout
+
+
+@pytest.mark.parametrize("name, rate", [("empty.txt", ["--rate", "10"]), ("empty.rec", [])])
+def test_a_recording_without_lines_says_so_not_that_nothing_was_received(tmp_path, profile, name, rate):
+    path = tmp_path / name
+    if rate:
+        path.write_bytes(b"")  # a plain capture that caught nothing
+    else:
+        RecWriter(path, START, {"source": "test"}).close()  # the header alone
+    r = CliRunner().invoke(main, ["replay", str(path), "--profile", str(EXAMPLE_PROFILE), "--out", str(tmp_path / "o"),
+                                  *rate])
+    assert r.exit_code == 0, r.stderr
+    s = json.loads((tmp_path / "o" / "summary.json").read_text())
+    assert (s["status"], s["message"], s["lines"]) == ("no readings", "The recording holds no lines.", 0)
+    assert "no readings: The recording holds no lines." in r.stdout
+    live = Pipeline(profile, fresh_settings(profile), [], START).finish()  # a capture that received nothing
+    assert live["message"] == "Nothing was received."
+    assert set(live) == set(s)  # summary.json's keys are the capture's
 
 
 def test_a_malformed_record_exits_2_and_keeps_what_came_before(tmp_path):
