@@ -21,6 +21,7 @@ from logger.run.writer import write_atomic
 from logger.analysis.uncertainty import (Component, radius_budget, reading_components, seatings_needed,
                                          systematic_components)
 from logger.units import UNITS, from_mm, to_mm
+from logger.words import plain_number
 
 
 def _echo_json(data: dict) -> None:
@@ -139,18 +140,20 @@ def plan(profile_path, diameter, focal_ratio, focal_length, scatter, radius_u, a
     if as_json:
         _echo_json(out)
         return
-    g = lambda key: f"{out[key]:.6g} {unit}"  # noqa: E731
-    click.echo(f"target: R = {g('target_radius')}, f = {g('focal_length')} (f/{out['focal_ratio']:.4g} over {diameter:g} {unit})")
+    g = lambda key: f"{plain_number(out[key])} {unit}"  # noqa: E731 - an inch count: 0.00005 in, not 5e-05 in
+    click.echo(f"target: R = {g('target_radius')}, f = {g('focal_length')} "
+               f"(f/{out['focal_ratio']:.4g} over {g('diameter')})")
     click.echo(f"depth of the curve over the aperture: {g('aperture_sagitta')}")
     click.echo(f"this spherometer reads {g('target_sagitta')} on the mirror (concave)"
                f" and {g('tool_sagitta')} on the matching convex tool")
     click.echo(f"one indicator count ({g('resolution')}) moves R by {g('radius_per_count')} at the target")
     if out["rig_terms"]:
         click.echo("the rig's other sources, u(R) at the target: " + ", ".join(
-            f"{name} {v:.3g} {unit}" for name, v in out["rig_terms"].items()) + " ([uncertainty] in the profile)")
+            f"{name} {plain_number(v, 3)} {unit}" for name, v in out["rig_terms"].items())
+            + " ([uncertainty] in the profile)")
     if scatter is not None:
         n = out["seatings_needed"]
-        want = f"u(R) = {radius_u:g} {unit} with {scatter:g} {unit} scatter"
+        want = f"u(R) = {plain_number(radius_u)} {unit} with {plain_number(scatter)} {unit} scatter"
         if n is None:
             click.echo(f"{want}: not reachable; resolution, spherometer and rig terms alone give u(R) = "
                        f"{g('radius_u_without_scatter')}")
