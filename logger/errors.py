@@ -48,3 +48,8 @@ def cannot_write(path, exc: OSError, kept: str = "") -> UserError:
     """The one message for a file that cannot be written (disk full, read-only, no permission)."""
     why = exc.strerror or str(exc)
     return UserError(f"{path}: cannot write ({why})" + (f"; {kept}" if kept else ""))
+
+
+def already_exists(path) -> UserError:
+    """The one message for an output file that is there already and would be lost (every command's --force)."""
+    return UserError(f"{path}: already exists (use --force to replace it)")

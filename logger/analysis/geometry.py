@@ -226,7 +226,11 @@ def aperture_depth_mm(radius_mm: float, diameter_mm: float) -> float:
     """Depth of the curve over the full aperture D: R - sqrt(R^2 - (D/2)^2)."""
     if diameter_mm <= 0:
         raise UserError(f"diameter must be positive, got {diameter_mm!r}")
-    return sagitta_of_sphere_mm(radius_mm, diameter_mm / 2.0)
+    h = diameter_mm / 2.0
+    if radius_mm < h:  # said here: sagitta_of_sphere_mm would call D/2 a ring, which it is not
+        raise UserError(f"a sphere of radius {radius_mm:g} mm cannot span an aperture of radius {h:g} mm, "
+                        "half the diameter")
+    return sagitta_of_sphere_mm(radius_mm, h)
 
 
 def ring_radius_from_reference_mm(

@@ -15,12 +15,13 @@ import click
 
 from logger.cli.options import NON_NEGATIVE, POSITIVE, profile_option
 from logger.analysis import geometry
-from logger.errors import UserError
+from logger.errors import UserError, already_exists
 from logger.config.profile import DEFAULT_U_MM, SENSES, load_profile, parse_profile
 from logger.run.writer import write_atomic
 from logger.analysis.uncertainty import (Component, radius_budget, reading_components, seatings_needed,
                                          systematic_components)
 from logger.units import UNITS, from_mm, to_mm
+from logger.words import plain_number
 
 
 def _echo_json(data: dict) -> None:
@@ -139,18 +140,20 @@ def plan(profile_path, diameter, focal_ratio, focal_length, scatter, radius_u, a
     if as_json:
         _echo_json(out)
         return
-    g = lambda key: f"{out[key]:.6g} {unit}"  # noqa: E731
-    click.echo(f"target: R = {g('target_radius')}, f = {g('focal_length')} (f/{out['focal_ratio']:.4g} over {diameter:g} {unit})")
+    g = lambda key: f"{plain_number(out[key])} {unit}"  # noqa: E731 - an inch count: 0.00005 in, not 5e-05 in
+    click.echo(f"target: R = {g('target_radius')}, f = {g('focal_length')} "
+               f"(f/{out['focal_ratio']:.4g} over {g('diameter')})")
     click.echo(f"depth of the curve over the aperture: {g('aperture_sagitta')}")
     click.echo(f"this spherometer reads {g('target_sagitta')} on the mirror (concave)"
                f" and {g('tool_sagitta')} on the matching convex tool")
     click.echo(f"one indicator count ({g('resolution')}) moves R by {g('radius_per_count')} at the target")
     if out["rig_terms"]:
         click.echo("the rig's other sources, u(R) at the target: " + ", ".join(
-            f"{name} {v:.3g} {unit}" for name, v in out["rig_terms"].items()) + " ([uncertainty] in the profile)")
+            f"{name} {plain_number(v, 3)} {unit}" for name, v in out["rig_terms"].items())
+            + " ([uncertainty] in the profile)")
     if scatter is not None:
         n = out["seatings_needed"]
-        want = f"u(R) = {radius_u:g} {unit} with {scatter:g} {unit} scatter"
+        want = f"u(R) = {plain_number(radius_u)} {unit} with {plain_number(scatter)} {unit} scatter"
         if n is None:
             click.echo(f"{want}: not reachable; resolution, spherometer and rig terms alone give u(R) = "
                        f"{g('radius_u_without_scatter')}")
@@ -263,7 +266,7 @@ def new_profile(out_path, unit, outside, inside, centres, ball, probe_distances,
     stamp = datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
     text = profile_text(data, f"Written by saglog new-profile at {stamp} from {how}.")
     if out.exists() and not force:
-        raise UserError(f"{out}: already exists (use --force to replace it)")
+        raise already_exists(out)
     write_atomic(out, text)
     load_profile(out)  # what was written reads back
     profile = parse_profile(data)

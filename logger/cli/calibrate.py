@@ -22,10 +22,11 @@ from logger.analysis.calibration import Calibration, Reference, calibrate, sagit
 from logger.cli.calc import profile_text, toml_value
 from logger.cli.options import NON_NEGATIVE, POSITIVE, PROFILE_HELP
 from logger.config.profile import Indicator, Profile, Spherometer, load_profile, parse_profile
-from logger.errors import UserError
+from logger.errors import UserError, already_exists
 from logger.run.load import load_run
 from logger.run.writer import write_atomic
 from logger.units import from_mm, to_mm
+from logger.words import plural
 
 # The rig's sources that a calibrated profile keeps from the one it was calibrated with; a caliper error
 # common to the legs has no legs left to act on (the ring radius now comes from the references).
@@ -65,7 +66,7 @@ def _per_run(values: tuple, n: int, option: str, default=None) -> list:
     if not values and default is not None:
         return [default] * n
     allowed = "one per RUN_DIR" if option == "--reference-radius" else "one for all or one per RUN_DIR"
-    raise UserError(f"{option}: {len(values)} given for {n} run folder(s) ({allowed})")
+    raise UserError(f"{option}: {len(values)} given for {n} run {plural(n, 'folder')} ({allowed})")
 
 
 def _reference(run, radius: float, u: float, surface: str | None, profile: Profile) -> Reference:
@@ -130,8 +131,9 @@ def _references_text(cal: Calibration, unit: str) -> list[str]:
 
 
 def _profile_toml(data: dict, cal: Calibration, source: str) -> str:
+    n = len(cal.references)
     head = profile_text({k: v for k, v in data.items() if k != "calibration"},
-                        f"Written by saglog calibrate from {len(cal.references)} reference run(s), calibrated "
+                        f"Written by saglog calibrate from {n} reference {plural(n, 'run')}, calibrated "
                         f"from {source}.\n[uncertainty] ring_radius leaves out the ball's share, which the "
                         "profile carries as\nring_radius_per_ball_diameter (docs/measurement.md).")
     cal_lines = ["", "[calibration]"] + [f"{k} = {toml_value(v)}" for k, v in data["calibration"].items()]
@@ -184,10 +186,10 @@ def calibrate_cmd(run_dirs, reference_radius, reference_u, reference_surface, ou
                         "surfaces; calibration needs ball feet (three-ball or calibrated)")
     refs = [_reference(run, R, u, sf or None, profile) for run, R, u, sf in zip(runs, radii, us, surfaces)]
     if out.exists() and not force:
-        raise UserError(f"{out}: already exists (use --force to replace it)")
+        raise already_exists(out)
     cal = calibrate(refs, profile.contact_mm("concave")[1], profile.spherometer.u_mm.get("ball_diameter", 0.0))
     base = profile.name or Path(profile.source).stem or "spherometer"
-    data = _profile_data(cal, profile, f"{base}, calibrated on {n} reference run(s)")
+    data = _profile_data(cal, profile, f"{base}, calibrated on {n} reference {plural(n, 'run')}")
     parse_profile(data, "calibrated profile")  # every check the reader makes, before anything is written
     write_atomic(out, _profile_toml(data, cal, profile.source or "the runs' settings"))
     load_profile(out)  # what was written reads back

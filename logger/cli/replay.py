@@ -12,11 +12,13 @@ from logger.live.stop import Stop
 
 
 @click.command("replay")
-@click.argument("recording", type=click.Path(dir_okay=False))
+@click.argument("recording", type=click.Path(dir_okay=False), metavar="REC")
 @click.option("--out", "out_dir", required=True, type=click.Path(file_okay=False), metavar="DIR",
               help="The run folder to write (a folder, made if missing).")
-@click.option("--rate", "rate_hz", type=POSITIVE, default=None, help="Lines per second of a plain capture (no timestamps).")
-@click.option("--force", is_flag=True, help="Overwrite a run folder that already holds a run (its old report files are removed).")
+@click.option("--rate", "rate_hz", type=POSITIVE, default=None,
+              help="Lines per second of a plain capture (no timestamps); a .rec has its own times.")
+@click.option("--force", is_flag=True,
+              help="Overwrite a run folder that already holds a run (its old report files are removed).")
 @analysis_options
 def replay_cmd(recording, out_dir, rate_hz, force, profile, run_settings):
     """Run the whole analysis on a recording (REC) and write the run folder.

@@ -171,8 +171,9 @@ class Pipeline:
         s.update(saglog_version=__version__, lines=lines, bad_lines=self.decoder.bad,
                  started_utc=iso_utc(self.start_wall), ended_utc=iso_utc(self.start_wall + self.last_t_s),
                  t_end_s=self.last_t_s, gaps=list(self.gaps))
-        if lines == 0:
-            s.update(status="no readings", message="Nothing was received.")
+        if lines == 0:  # a capture waited for lines; a replay read a recording (or a plain capture) without any
+            s.update(status="no readings",
+                     message="Nothing was received." if self.live else "The recording holds no lines.")
         elif self.decoder.good == 0:
             said = ("The one line received was a bad line (no reading in it)" if lines == 1
                     else f"All {lines} lines were bad lines (no reading in them)")

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from logger.units import from_mm
+from logger.words import plural
 
 
 def length_text(x_mm, unit: str, digits: int = 4) -> str:
@@ -34,7 +35,7 @@ def to_go_words(summary: dict) -> tuple[str, str]:
 
 def bad_lines_words(bad, lines) -> str:
     """The summary's line counts in words: '1 bad line of 601', '0 bad lines of 1146' (either may be 'n/a')."""
-    return f"{bad} bad line{'' if bad == 1 else 's'} of {lines}"
+    return f"{bad} bad {plural(bad, 'line')} of {lines}"
 
 
 def result_lines(summary: dict) -> list[str]:

@@ -15,6 +15,7 @@ from logger.formats.recording import (is_recording, open_recording, parse_event,
 from logger.live.batch import feed_recording
 from logger.live.stop import NEVER
 from logger.run.writer import RunWriter, prepare_folder
+from logger.words import plural
 
 
 def replay_file(path: str | Path, profile: Profile, settings: RunSettings, out_dir: str | Path,
@@ -31,8 +32,10 @@ def replay_file(path: str | Path, profile: Profile, settings: RunSettings, out_d
     run of the lines fed so far, and Stopped is raised.
     """
     path = Path(path)
-    if not path.is_file():
+    if not path.exists():
         raise UserError(f"{path}: recording not found")
+    if not path.is_file():  # a FIFO, a folder, a device: it is there, so "not found" would mislead
+        raise UserError(f"{path}: not a regular file; a recording to replay is a file")
     end_s = None
 
     def on_comment(text: str) -> None:
@@ -48,6 +51,9 @@ def replay_file(path: str | Path, profile: Profile, settings: RunSettings, out_d
 
     batch = batch and not listeners
     if is_recording(path):
+        if rate_hz is not None:
+            raise UserError(f"{path}: --rate is for a plain capture without times; this is a recording "
+                            "with its own times (leave --rate out)")
         if batch:
             header, p, f, first, lineno = open_recording(path)
             records = None
@@ -80,7 +86,7 @@ def replay_file(path: str | Path, profile: Profile, settings: RunSettings, out_d
     summary = pipeline.finish(end_s)
     if stopped:
         n = summary["lines"]
-        raise Stopped(f"replay stopped (Ctrl-C or SIGTERM) after {n:,} line{'' if n == 1 else 's'} of {path}; "
+        raise Stopped(f"replay stopped (Ctrl-C or SIGTERM) after {n:,} {plural(n, 'line')} of {path}; "
                       f"{out} holds the whole run of {'it' if n == 1 else 'them'}", summary)
     return summary
 

@@ -32,6 +32,7 @@ from logger.errors import UserError
 from logger.run.rows import formula_safe
 from logger.run.load import load_runs, runs_table
 from logger.units import from_mm, to_mm
+from logger.words import plural
 
 MIN_RUNS_FOR_TREND = 3
 TREND_CONFIDENCE = 0.95  # two-sided, for the slope's t test
@@ -143,7 +144,7 @@ def make_history_figure(table: pd.DataFrame, target_mm: float | None, band_mm: f
                        label=f"target ± {band_mm * k:.3g} {unit} ({band_label})", **ps.TARGET_BAND)
     left_out = len(table) - len(shown)
     if left_out:
-        ax.text(0.01, 0.01, f"{left_out} run(s) without a radius or start time not shown", transform=ax.transAxes,
+        ax.text(0.01, 0.01, f"{left_out} {plural(left_out, 'run')} without a radius or start time not shown", transform=ax.transAxes,
                 fontsize=8, gid="left-out")
     ax.set_xlabel("start of run (UTC)")
     ax.set_ylabel(f"radius of curvature ({unit})")

@@ -33,6 +33,7 @@ from logger.live.present import bad_lines_words, to_go, to_go_words
 from logger.run.columns import REPORT_PICTURE, REPORT_TEXT
 from logger.run.load import Run, load_run
 from logger.units import from_mm
+from logger.words import plain_number
 
 TRACE_COLUMNS = 2600  # envelope columns of the trace: twice the figure's width in pixels (13 in at 100 dpi)
 MAX_HATCHED_WINDOWS = 400  # beyond this, seated windows are drawn without hatching
@@ -75,8 +76,8 @@ def _spherometer_text(s: dict, unit: str) -> str:
             parts.append(f"{name} {fmt_len(s[key], unit)}")
     q = s.get("resolution_mm")
     if is_number(q):  # positional digits: an inch count reads 0.0000394 in, not 3.93701e-05
-        shown = np.format_float_positional(from_mm(q, unit), precision=3, unique=False, fractional=False, trim="-")
-        parts.append(f"one count {shown} {unit}" + (f" ({fmt_len(q, 'mm')})" if unit != "mm" else ""))
+        parts.append(f"one count {plain_number(from_mm(q, unit), 3)} {unit}"
+                     + (f" ({fmt_len(q, 'mm')})" if unit != "mm" else ""))
     return ", ".join(parts) or "not recorded"
 
 

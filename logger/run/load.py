@@ -27,6 +27,7 @@ from logger.run.columns import (TABLES, Column, RECORDING_FILE, SAMPLES_COLUMNS,
                                 SEATINGS_FILE, SETTINGS_FILE, SUMMARY_FILE)
 from logger.errors import UserError
 from logger.units import check_unit
+from logger.words import plural
 
 
 def columns_markdown() -> str:
@@ -76,7 +77,7 @@ def _read_table(path: Path, columns: tuple[Column, ...], categories: tuple[str, 
         header = pd.read_csv(path, nrows=0, engine="c").columns
         missing = [c.name for c in columns if c.name not in header]
         if missing:
-            raise UserError(f"{path}: missing column(s) {', '.join(missing)}")
+            raise UserError(f"{path}: missing {plural(len(missing), 'column')} {', '.join(missing)}")
         rest = [c.name for c in columns[1:]] if lead_time else None
         df = pd.read_csv(path, dtype=dtype, usecols=rest, keep_default_na=False, na_values=[""], engine="c")
         for name in categories:  # read_csv infers the categories' type: "01" and "1" would both be 1

@@ -19,6 +19,7 @@ from logger.checks import is_positive
 from logger.errors import UserError
 from logger.config.profile import PROFILE_DIR, Profile, load_profile
 from logger.units import check_unit, to_mm
+from logger.words import plural
 
 SCENARIO_DIR = Path(__file__).resolve().parent / "scenarios"
 DEFAULT_SCENARIO = "mirror-150-f8-rough"
@@ -116,7 +117,7 @@ class Scenario:
         """A copy with some fields changed (lengths in mm), checked again."""
         unknown = set(kw) - {f.name for f in dataclasses.fields(self)}
         if unknown:
-            raise UserError(f"unknown scenario field(s): {', '.join(sorted(unknown))}")
+            raise UserError(f"unknown scenario {plural(len(unknown), 'field')}: {', '.join(sorted(unknown))}")
         s = dataclasses.replace(self, **kw)
         s.validate()
         return s

@@ -3,9 +3,12 @@
 import json
 import math
 import os
+import re
 import subprocess
 import sys
 import tempfile
+import tomllib
+from decimal import Decimal
 from pathlib import Path
 
 import pytest
@@ -166,6 +169,23 @@ def test_plan_human_and_seatings():
     assert "not reachable" in res.stdout
 
 
+def test_plan_prints_lengths_in_plain_decimals_never_e_notation():
+    # An inch indicator's count (0.00005 in, read from the shipped profile) and an inch scatter as small:
+    # every length in plain decimals (Python's decimal module writes the count without an exponent),
+    # with the values of --json to six significant figures.
+    inch = ROOT / "logger" / "config" / "profiles" / "example-three-ball-inch.toml"
+    q = tomllib.loads(inch.read_text())["indicator"]["resolution"]
+    args = ("plan", "--profile", inch, "--diameter", "6", "--focal-ratio", "8", "--scatter", repr(q),
+            "--radius-u", "0.01")
+    res = run(*args)
+    assert res.exit_code == 0, res.stderr
+    assert not re.search(r"\d[eE][-+]?\d", res.stdout), res.stdout
+    assert f"one indicator count ({Decimal(repr(q)):f} in) moves R by " in res.stdout
+    assert f"with {Decimal(repr(q)):f} in scatter" in res.stdout
+    per_count = float(re.search(r"moves R by ([0-9.]+) in", res.stdout).group(1))
+    assert per_count == pytest.approx(ok_json(*args)["radius_per_count"], rel=1e-5)
+
+
 def _new(tmp_path, *args, name="new.toml"):
     return run("new-profile", "--out", tmp_path / name, *args)
 
@@ -313,6 +333,9 @@ CMD_BAD = [
     (("plan", "--profile", EXAMPLE, "--diameter", "200", "--focal-ratio", "5", "--focal-length", "1000"),
      ["exactly one"]),
     (("plan", "--profile", EXAMPLE, "--diameter", "200", "--focal-ratio", "0.1"), ["--diameter", "too large"]),
+    # the 100 mm is the mirror's half-diameter (R = 2 f = 40 mm), not the spherometer's ring
+    (("plan", "--profile", EXAMPLE, "--diameter", "200", "--focal-ratio", "0.1"),
+     ["sphere of radius 40 mm cannot span an aperture of radius 100 mm, half the diameter"]),
     (("plan", "--profile", EXAMPLE, "--diameter", "20", "--focal-ratio", "0.6"), ["--focal-ratio", "too short"]),
     (("plan", "--profile", EXAMPLE, "--diameter", "200", "--focal-ratio", "5", "--scatter", "0.002"),
      ["--radius-u"]),

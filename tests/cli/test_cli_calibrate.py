@@ -98,12 +98,23 @@ def test_two_runs_on_one_plate_share_its_certificate(runs, tmp_path):
     assert cert[0]["contribution_mm"] == pytest.approx(0.05 * s / r, rel=0.01)
 
 
+@pytest.mark.parametrize("names, said", [(("plate",), "1 reference run"), (("plate", "plate2"), "2 reference runs")])
+def test_the_written_profile_counts_its_reference_runs_in_good_english(runs, tmp_path, names, said):
+    out = tmp_path / "c.toml"
+    res = run("calibrate", *(runs[n] for n in names), *("--reference-radius", 1500) * len(names),
+              "--reference-u", 0.05, "--out", out)
+    assert res.exit_code == 0, res.stderr
+    text = out.read_text()
+    assert tomllib.loads(text)["name"].endswith(f", calibrated on {said}")
+    assert f"Written by saglog calibrate from {said}, calibrated" in text and "(s)" not in text
+
+
 @pytest.mark.parametrize("case", ["count", "u-count", "surface", "radius", "flat-only", "instruments", "exists"])
 def test_bad_input_is_one_line_and_writes_nothing(runs, tmp_path, case):
     out = tmp_path / "cal.toml"
     plate, R = runs["plate"], ("--reference-radius", 1500)
     args, words = {
-        "count": ((plate, runs["ball"], *R), ("--reference-radius", "1 given for 2")),
+        "count": ((plate, runs["ball"], *R), ("--reference-radius: 1 given for 2 run folders (",)),
         "u-count": ((plate, runs["ball"], *R, "--reference-radius", 60, "--reference-u", 1, "--reference-u", 2,
                      "--reference-u", 3), ("--reference-u",)),
         "surface": ((plate, *R, "--reference-surface", "convex"), (str(plate), "concave", "convex")),

@@ -11,9 +11,13 @@ import pandas as pd
 import pytest
 from click.testing import CliRunner
 
-from tests.helpers.paths import EXAMPLE_PROFILE, SAMPLE_STREAMS, run_saglog
+from tests.helpers.paths import EXAMPLE_PROFILE, SAMPLE_STREAMS, run_saglog, user_error
+from tests.live.test_faults import fresh_settings
 from logger.cli.main import main
+from logger.errors import UserError
 from logger.formats.recording import RecWriter
+from logger.live.pipeline import Pipeline
+from logger.live.replay import replay_file
 
 START = 1_780_000_000.0
 
@@ -71,6 +75,24 @@ def test_all_garbage_is_counted_and_explained(tmp_path, n, said):
     assert f"{n} bad line{'s' if n > 1 else ''} of {n}" in r.stdout
 
 
+@pytest.mark.parametrize("name, rate", [("empty.txt", ["--rate", "10"]), ("empty.rec", [])])
+def test_a_recording_without_lines_says_so_not_that_nothing_was_received(tmp_path, profile, name, rate):
+    path = tmp_path / name
+    if rate:
+        path.write_bytes(b"")  # a plain capture that caught nothing
+    else:
+        RecWriter(path, START, {"source": "test"}).close()  # the header alone
+    r = CliRunner().invoke(main, ["replay", str(path), "--profile", str(EXAMPLE_PROFILE), "--out", str(tmp_path / "o"),
+                                  *rate])
+    assert r.exit_code == 0, r.stderr
+    s = json.loads((tmp_path / "o" / "summary.json").read_text())
+    assert (s["status"], s["message"], s["lines"]) == ("no readings", "The recording holds no lines.", 0)
+    assert "no readings: The recording holds no lines." in r.stdout
+    live = Pipeline(profile, fresh_settings(profile), [], START).finish()  # a capture that received nothing
+    assert live["message"] == "Nothing was received."
+    assert set(live) == set(s)  # summary.json's keys are the capture's
+
+
 def test_a_malformed_record_exits_2_and_keeps_what_came_before(tmp_path):
     rec = tmp_path / "m.rec"
     write_session(rec)
@@ -102,6 +124,33 @@ def test_plain_capture_needs_a_rate(tmp_path):
     samples = pd.read_csv(tmp_path / "o" / "samples.csv")
     assert samples["time"].iloc[0] == "2026-03-12T09:59:56.020000Z"
     assert samples["time"].iloc[-1] == "2026-03-12T10:00:00.000000Z"
+
+
+def test_a_recording_with_its_own_times_refuses_a_rate(tmp_path):
+    rec = tmp_path / "s.rec"
+    write_session(rec)
+    r = CliRunner().invoke(main, ["replay", str(rec), "--profile", str(EXAMPLE_PROFILE), "--out", str(tmp_path / "o"),
+                                  "--rate", "10"])
+    user_error(r, str(rec), "--rate is for a plain capture without times", "recording with its own times")
+    assert not (tmp_path / "o").exists()  # refused before the run folder was made
+
+
+def test_something_there_that_is_no_file_is_not_called_missing(tmp_path, profile):
+    fifo, folder = tmp_path / "fifo.rec", tmp_path / "folder.rec"
+    os.mkfifo(fifo)
+    folder.mkdir()
+    base = ["--profile", str(EXAMPLE_PROFILE), "--out", str(tmp_path / "o")]
+    user_error(CliRunner().invoke(main, ["replay", str(fifo), *base]), str(fifo), "not a regular file")
+    user_error(CliRunner().invoke(main, ["replay", str(tmp_path / "gone.rec"), *base]), "gone.rec: recording not found")
+    with pytest.raises(UserError, match="folder.rec: not a regular file"):  # the command line's REC refuses it first
+        replay_file(folder, profile, fresh_settings(profile), tmp_path / "o")
+    assert not (tmp_path / "o").exists()
+
+
+def test_the_help_calls_the_argument_what_the_usage_line_shows():
+    r = CliRunner().invoke(main, ["replay", "--help"])
+    arg = r.stdout.splitlines()[0].split()[-1]
+    assert arg == "REC" and f"a recording ({arg})" in r.stdout, arg  # REC: the contract's name for it
 
 
 def test_an_existing_run_is_not_overwritten(tmp_path):

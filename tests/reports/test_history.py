@@ -15,6 +15,7 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
+import pytest
 from click.testing import CliRunner
 from hypothesis import given, settings
 from hypothesis import strategies as st
@@ -71,6 +72,14 @@ def test_ordering_target_band_and_kinds(tmp_path):
     np.testing.assert_array_equal(m.get_ydata(), [2500.0, 2470.0, 2445.0])
     assert len(ax.containers) == 2  # one error-bar set per kind
     assert ax.get_ylabel() == "radius of curvature (mm)"
+
+
+@pytest.mark.parametrize("radii, said", [([2500.0, None, 2470.0], "1 run"), ([2500.0, None, None], "2 runs")])
+def test_runs_left_out_of_the_plot_are_counted_in_good_english(tmp_path, radii, said):
+    t = history_table(load_runs(make_runs(tmp_path, radii)))
+    fig = make_history_figure(t, None, 0.0, "mm")
+    (note,) = [x.get_text() for x in fig.axes[0].texts if x.get_gid() == "left-out"]
+    assert note == f"{said} without a radius or start time not shown"
 
 
 def test_inches_and_given_target(tmp_path):

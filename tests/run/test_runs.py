@@ -15,6 +15,7 @@ from hypothesis import example, given, settings
 from hypothesis import strategies as st
 
 from logger.errors import UserError
+from logger.run.columns import SAMPLES_COLUMNS
 from logger.run.load import columns_markdown, load_run, load_runs, runs_table
 from tests.helpers.paths import ROOT as REPO
 from tests.helpers.runfolder import SAMPLE_FIELDS, SEAT_FIELDS, write_csv, write_run
@@ -105,7 +106,10 @@ def test_broken_contents_are_user_errors(tmp_path):
     with pytest.raises(UserError, match="seatings.csv: column accepted: expected true or false"):
         load_run(d).seatings
     (d / "samples.csv").write_text("time,t_s,raw\n")
-    with pytest.raises(UserError, match="missing column"):
+    with pytest.raises(UserError, match="samples.csv: missing columns value_mm, "):
+        load_run(d).samples
+    (d / "samples.csv").write_text(",".join(c.name for c in SAMPLES_COLUMNS[:-1]) + "\n")
+    with pytest.raises(UserError, match=f"samples.csv: missing column {SAMPLES_COLUMNS[-1].name}$"):
         load_run(d).samples
     write_run(d, n_surface=3, seated_s=0.5, summary={"unit": "furlong"})
     with pytest.raises(UserError, match="unit"):

@@ -11,12 +11,15 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from click.testing import CliRunner
 from scipy.optimize import brentq
 
 from logger.formats.decode import Decoder, LineSplitter
 from logger.errors import UserError
 from logger.formats.recording import read_recording
 from logger.simulator import load_scenario, scenario_names, simulate, write_recording
+from logger.cli.main import main
+from tests.helpers.paths import user_error
 
 REPO = Path(__file__).resolve().parents[2]
 
@@ -240,8 +243,10 @@ def test_scenario_errors_name_the_file_and_key(tmp_path):
         load_scenario(p)
     with pytest.raises(UserError, match="no such scenario"):
         load_scenario("no-such-scenario")
-    with pytest.raises(UserError, match="unknown scenario field"):
+    with pytest.raises(UserError, match="unknown scenario field: colour$"):
         load_scenario("fast-1khz").with_overrides(colour="red")
+    with pytest.raises(UserError, match="unknown scenario fields: colour, size$"):
+        load_scenario("fast-1khz").with_overrides(size=3, colour="red")
 
 
 def test_scenario_in_inches_converts_lengths(tmp_path):
@@ -284,6 +289,25 @@ def test_cli_rec_and_truth(tmp_path):
     assert truth["seed"] == 5 and truth["surface"] == "convex"
     _, recs = read_recording(tmp_path / "a.rec")
     assert sum(1 for _ in recs) > 100
+
+
+def test_cli_rec_never_replaces_a_file_unasked(tmp_path):
+    rec = tmp_path / "stream.rec"  # e.g. a capture's own recording
+    rec.write_bytes(b"a capture's recording\n")
+    runner = CliRunner()
+    r = runner.invoke(main, ["simulate", "--rec", str(rec), "--scenario", "unplugged"])
+    user_error(r, str(rec), "already exists", "--force")
+    assert rec.read_bytes() == b"a capture's recording\n"
+    r = runner.invoke(main, ["simulate", "--rec", str(rec), "--scenario", "unplugged", "--force"])
+    assert r.exit_code == 0, r.stderr
+    header, recs = read_recording(rec)
+    assert header["scenario"] == "unplugged" and sum(1 for _ in recs) > 100
+    user_error(runner.invoke(main, ["simulate", "--pty", "--force"]), "--force is for --rec")
+
+
+def test_cli_help_names_the_default_scenario():
+    r = CliRunner().invoke(main, ["simulate", "--help"])
+    assert f"(default: {load_scenario(None).name})" in " ".join(r.stdout.split())
 
 
 def test_cli_errors_are_one_line():
