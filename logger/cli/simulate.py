@@ -21,13 +21,13 @@ from logger.simulator.serve import PtyServer, TcpServer, virtual_device
 @click.option("--tcp", "tcp_port", type=click.IntRange(0, 65535), default=None, metavar="PORT", help="Serve on 127.0.0.1:PORT (0: any free port).")
 @click.option("--rec", "rec_path", type=click.Path(dir_okay=False), default=None,
               help="Write the whole run to a .rec recording at once (no real time); an existing FILE needs --force.")
-@click.option("--force", is_flag=True, help="Replace the --rec FILE if it exists.")
+@click.option("--force", is_flag=True, help="Replace the --rec or --truth FILE if it exists.")
 @click.option("--scenario", default=None, metavar="NAME|FILE",
               help=f"Scenario name (shipped with saglog) or TOML file (default: {DEFAULT_SCENARIO}).")
 @click.option("--seed", type=int, default=None, metavar="N", help="Random seed (default: the scenario's).")
 @click.option("--rate", type=POSITIVE, default=None, help="Lines per second (overrides the scenario).")
 @click.option("--truth", "truth_path", type=click.Path(dir_okay=False), default=None,
-              help="Write the run's truth (radius, seatings) as JSON.")
+              help="Write the run's truth (radius, seatings) as JSON; an existing FILE needs --force.")
 @click.option("--speed", type=POSITIVE, default=1.0, show_default=True, help="Time factor (2: twice as fast).")
 @click.option("--link", "link_path", default=None, metavar="PATH", help="Also make a symlink to the pty at this path.")
 def simulate_cmd(use_pty, tcp_port, rec_path, force, scenario, seed, rate, truth_path, speed, link_path):
@@ -38,10 +38,11 @@ def simulate_cmd(use_pty, tcp_port, rec_path, force, scenario, seed, rate, truth
     """
     if sum(x is not None and x is not False for x in (use_pty or None, tcp_port, rec_path)) != 1:
         raise UserError("simulate: give exactly one of --pty, --tcp PORT or --rec FILE")
-    if force and not rec_path:
-        raise UserError("--force is for --rec FILE: it replaces an existing recording")
-    if rec_path and Path(rec_path).exists() and not force:  # e.g. a capture's stream.rec: never lost unasked
-        raise already_exists(rec_path)
+    if force and not (rec_path or truth_path):
+        raise UserError("--force is for --rec FILE or --truth FILE: it replaces an existing one")
+    for path in (rec_path, truth_path):  # e.g. a capture's stream.rec: never lost unasked
+        if path and Path(path).exists() and not force:
+            raise already_exists(path)
     sc = load_scenario(scenario)
     if rate is not None:
         sc = sc.with_overrides(rate_hz=rate)

@@ -302,7 +302,14 @@ def test_cli_rec_never_replaces_a_file_unasked(tmp_path):
     assert r.exit_code == 0, r.stderr
     header, recs = read_recording(rec)
     assert header["scenario"] == "unplugged" and sum(1 for _ in recs) > 100
-    user_error(runner.invoke(main, ["simulate", "--pty", "--force"]), "--force is for --rec")
+    user_error(runner.invoke(main, ["simulate", "--pty", "--force"]), "--force is for --rec FILE or --truth FILE")
+    # the truth file likewise, and the recording is not written either when the truth would be refused
+    truth = tmp_path / "truth.json"
+    truth.write_text("kept")
+    fresh = tmp_path / "fresh.rec"
+    r = runner.invoke(main, ["simulate", "--rec", str(fresh), "--truth", str(truth), "--scenario", "unplugged"])
+    user_error(r, str(truth), "already exists", "--force")
+    assert truth.read_text() == "kept" and not fresh.exists()
 
 
 def test_cli_help_names_the_default_scenario():
