@@ -16,6 +16,7 @@ class PlainLog(RunStatus):
         super().__init__()
         self.unit = unit
         self.stream = stream or sys.stdout
+        self._gap_s: float | None = None  # the latest gap's length, until the device is back
 
     def say(self, text: str) -> None:
         """One line: the time (ISO 8601 UTC) and the text."""
@@ -23,9 +24,23 @@ class PlainLog(RunStatus):
         self.stream.flush()
 
     def state(self, state: State) -> None:
+        """Seated; the device gone and back (the panel's words).
+
+        A view starts out waiting, so the waits before the first opening (the run does not exist
+        yet) print nothing; a stop while the device is gone prints no "back".
+        """
+        was = self.current
         super().state(state)
         if state == State.SEATED:
             self.say("seated")
+        elif state == State.WAITING and was != State.WAITING:
+            self.say(State.WAITING.value)
+        elif was == State.WAITING and self._gap_s is not None:
+            self.say(f"device back after a gap of {self._gap_s:.1f} s")
+            self._gap_s = None
+
+    def gap(self, t_start_s: float, t_end_s: float) -> None:
+        self._gap_s = t_end_s - t_start_s  # told between the wait and the reopening
 
     def seating(self, decision, summary: dict) -> None:
         super().seating(decision, summary)

@@ -36,7 +36,7 @@ from logger.live.plainlog import PlainLog
 from logger.live.pipeline import RunSettings
 from logger.live.replay import replay_file
 from logger.live.stop import Stop
-from logger.analysis.seating import DetectorSettings
+from logger.analysis.seating import DetectorSettings, State
 from logger.analysis.session import AnalysisSettings
 from logger.cli.main import main
 from logger.simulator import PtyServer, TcpServer, load_scenario, simulate
@@ -44,7 +44,7 @@ from logger.transport.serial_source import can_gather
 
 _LEADING_NUMBER = re.compile(r"[+-]?[0-9]+(\.[0-9]+)?")
 ISO_LINE = re.compile(r"^\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d\.\d{6}Z (seated|seating \d+ on the (flat|surface): "
-                      r"(accepted|rejected \(.+\))|radius .+)$")
+                      r"(accepted|rejected \(.+\))|radius .+|waiting for device|device back after a gap of \d+\.\d s)$")
 
 
 def short_session(**overrides):
@@ -426,11 +426,12 @@ def test_a_device_that_never_appeared_leaves_no_empty_run_folder(tmp_path):
     assert proc.returncode == 3 and not (tmp_path / "run").exists()
 
 
-def _capture_in_a_thread(dev: PtyDevice, out):
+def _capture_in_a_thread(dev: PtyDevice, out, listeners=()):
     """A capture of `dev` into `out` on a thread not yet started: (profile, stop, out, [its summary], thread)."""
     profile, stop, done = load_profile(EXAMPLE_PROFILE), Stop(), []
     worker = threading.Thread(target=lambda: done.append(capture(str(dev.link), profile, settings_for(profile), out,
-                                                                 stop=stop, wait_s=5)), daemon=True)
+                                                                 stop=stop, wait_s=5, listeners=listeners)),
+                              daemon=True)
     return profile, stop, out, done, worker
 
 
@@ -504,3 +505,50 @@ def test_a_lone_first_line_is_not_held_off_the_disk(tmp_path):
     finally:
         dev.close()
     assert done and done[0]["lines"] == 1 and done[0]["bad_lines"] == 0
+
+
+class StatesHeard(Listener):
+    """Every state the listeners are told, in order (with no lines sent, only the capture's own)."""
+
+    def __init__(self):
+        self.heard = []
+
+    def state(self, state) -> None:
+        self.heard.append(state)
+
+
+def test_the_plain_log_says_when_the_device_is_gone_and_when_it_is_back(tmp_path):
+    # Not there at the start (the capture waits for it before the run exists: no line for that), then
+    # unplugged once and plugged back: one timestamped "waiting for device" and, after it, one "device
+    # back after a gap of S s", S the gap summary.json records and within what the test's own clock
+    # saw: from the plug to the waiting line at least, from the unplug to the back line at most.
+    dev = PtyDevice(tmp_path / "ttyINDICATOR")
+    dev.unplug()
+    log, states = io.StringIO(), StatesHeard()
+    _, stop, out, done, worker = _capture_in_a_thread(dev, tmp_path / "cap", [PlainLog("mm", log), states])
+    try:
+        worker.start()
+        wait_for(lambda: State.WAITING in states.heard, 30, "the capture to wait for the device")
+        dev.plug()
+        wait_for(lambda: states.heard[-1:] == [State.LIFTED], 30, "the port to open")
+        unplugged = time.monotonic()
+        dev.unplug()
+        wait_for(lambda: "waiting for device" in log.getvalue(), 30, "the waiting line")
+        seen_waiting = time.monotonic()
+        time.sleep(0.5)  # gone a while
+        plugged = time.monotonic()
+        dev.plug()
+        wait_for(lambda: "device back" in log.getvalue(), 30, "the line when the device is back")
+        seen_back = time.monotonic()
+        stop.requested = True
+        worker.join(30)
+    finally:
+        dev.close()
+    assert not worker.is_alive() and done
+    (gap,) = done[0]["gaps"]
+    gap_s = gap["t_end_s"] - gap["t_start_s"]  # the capture's clock is monotonic too
+    assert plugged - seen_waiting <= gap_s <= seen_back - unplugged
+    lines = log.getvalue().splitlines()
+    assert all(ISO_LINE.match(x) for x in lines), lines
+    assert [x.split(" ", 1)[1] for x in lines] == ["waiting for device", f"device back after a gap of {gap_s:.1f} s"]
+    assert lines[0].split()[0] < lines[1].split()[0]  # ISO 8601 UTC times in one format sort as text

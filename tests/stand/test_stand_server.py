@@ -10,8 +10,12 @@ the brief (>= 128 bits, Python's `secrets`).
 from __future__ import annotations
 
 import base64
+import ipaddress
 import json
+import re
 import socket
+import subprocess
+import sys
 import time
 from importlib import resources
 
@@ -20,7 +24,8 @@ import pytest
 from logger.errors import UserError
 from logger.live.stand.address import WebAddress, new_key, page_url, parse_web
 from logger.live.stand.server import StandServer, bind
-from tests.helpers.stand import EventReader, request, wait_for
+from tests.helpers.paths import ROOT
+from tests.helpers.stand import EventReader, request, saglog_env, wait_for
 
 KEY = "a-test-key-0123456789"
 PATHS = ("/", "/state.json", "/events", "/stand.js", "/stand.css")
@@ -147,6 +152,26 @@ def test_keys_are_fresh_and_at_least_128_bits():
     for k in keys:
         assert len(base64.urlsafe_b64decode(k + "=" * (-len(k) % 4))) * 8 >= 128
     assert page_url(WebAddress("0.0.0.0", 0), 8080, "a b&c").endswith(":8080/?key=a%20b%26c")
+
+
+def test_a_wildcard_page_url_shows_an_address_of_this_machine_beyond_loopback_not_its_name():
+    """Also where the name resolves to loopback only (Debian and Raspberry Pi OS, and the test machine)."""
+    host = re.fullmatch(r"http://([^:/]+):8080/\?key=k", page_url(WebAddress("0.0.0.0", 0), 8080, "k")).group(1)
+    assert host != socket.gethostname()
+    ip = ipaddress.ip_address(host)  # a literal, not a name
+    assert ip.version == 4 and not ip.is_loopback and not ip.is_unspecified
+    with socket.socket() as own:
+        own.bind((host, 0))  # only this machine's own addresses can be bound
+
+
+def test_without_a_network_the_page_url_falls_back_to_the_name():
+    """In a network namespace of its own (loopback only) there is no address to show but the name."""
+    probe = [sys.executable, "-c", "from logger.live.stand.address import WebAddress, page_url; "
+             "print(page_url(WebAddress('0.0.0.0', 0), 8080, None), page_url(WebAddress('::', 0), 8080, None))"]
+    out = subprocess.run(["unshare", "-rn", *probe], capture_output=True, text=True, env=saglog_env(), cwd=ROOT)
+    assert out.returncode == 0, f"needs a network namespace of its own (unshare -rn; CI runs as root): {out.stderr}"
+    name = socket.gethostname()
+    assert out.stdout.split() == [f"http://{name}:8080/", f"http://{name}:8080/"]
 
 
 def test_a_stalled_client_is_dropped_and_a_reading_one_hears_everything():

@@ -8,8 +8,10 @@ gets it from the printed URL or the QR code drawn in the terminal.
 from __future__ import annotations
 
 import ipaddress
+import itertools
 import secrets
 import socket
+from collections.abc import Iterator
 from dataclasses import dataclass
 from urllib.parse import quote
 
@@ -17,6 +19,8 @@ from logger.errors import UserError
 
 DEFAULT_HOST = "127.0.0.1"
 KEY_BYTES = 16  # 128 bits from the system's secure source
+# never routed (TEST-NET-1, RFC 5737; the documentation prefix, RFC 3849): only the route to them is looked up
+ROUTE_PROBES = {socket.AF_INET: ("192.0.2.1", 9), socket.AF_INET6: ("2001:db8::1", 9)}
 
 
 @dataclass(frozen=True)
@@ -80,14 +84,36 @@ def _url_host(host: str) -> str:
 
 
 def _own_address(family: int) -> str:
-    """The first non-loopback address this machine's name resolves to locally; the name itself when none."""
-    name = socket.gethostname()
-    try:
-        infos = socket.getaddrinfo(name, None, family, socket.SOCK_STREAM)
-    except OSError:
-        return name
-    for info in infos:
-        addr = info[4][0]
-        if not is_loopback(addr):
+    """This machine's address on the network, the one a phone can reach; the host name only when there is none.
+
+    The name alone is not enough: Debian and Raspberry Pi OS map it to 127.0.1.1, so the first
+    candidate is the address the system would send from towards the outside, then (looked up only
+    if needed) what the name resolves to. Loopback, unspecified and link-local addresses are passed
+    over: a phone cannot open them.
+    """
+    for addr in itertools.chain(_routed_address(family), _named_addresses(family)):
+        ip = ipaddress.ip_address(addr)
+        if not (ip.is_loopback or ip.is_unspecified or ip.is_link_local):
             return addr
-    return name
+    return socket.gethostname()
+
+
+def _routed_address(family: int) -> Iterator[str]:
+    """The source address of the route to a documentation address: connecting a UDP socket sends nothing."""
+    try:
+        with socket.socket(family, socket.SOCK_DGRAM) as probe:
+            probe.connect(ROUTE_PROBES[family])
+            address = probe.getsockname()[0]
+    except OSError:  # no route (no network), or no such family
+        return
+    yield address
+
+
+def _named_addresses(family: int) -> Iterator[str]:
+    """What this machine's name resolves to."""
+    try:
+        infos = socket.getaddrinfo(socket.gethostname(), None, family, socket.SOCK_STREAM)
+    except (OSError, UnicodeError):
+        return
+    for info in infos:
+        yield info[4][0]
