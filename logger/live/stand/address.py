@@ -92,7 +92,7 @@ def _own_address(family: int) -> str:
     over: a phone cannot open them.
     """
     for addr in itertools.chain(_routed_address(family), _named_addresses(family)):
-        ip = ipaddress.ip_address(addr)
+        ip = ipaddress.ip_address(addr.split("%", 1)[0])  # an IPv6 address may carry its zone (fe80::1%eth0)
         if not (ip.is_loopback or ip.is_unspecified or ip.is_link_local):
             return addr
     return socket.gethostname()
