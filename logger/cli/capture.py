@@ -34,7 +34,8 @@ from logger.live.stop import Stop
 @view_option
 @click.option("--no-bells", is_flag=True, help="No bell cues (one ring accepted, two rejected, three zero set).")
 @click.option("--quiet", "old_quiet", is_flag=True, hidden=True)  # the earlier name of --no-bells
-@click.option("--force", is_flag=True, help="Write into a run folder that already holds a run (its old report files are removed).")
+@click.option("--force", is_flag=True,
+              help="Write into a run folder that already holds a run (its old report files are removed).")
 @stand_options
 @analysis_options
 def capture_cmd(port, out_dir, baudrate, bytesize, parity, stopbits, poll, poll_every, duration_s,

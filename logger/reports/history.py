@@ -144,8 +144,8 @@ def make_history_figure(table: pd.DataFrame, target_mm: float | None, band_mm: f
                        label=f"target ± {band_mm * k:.3g} {unit} ({band_label})", **ps.TARGET_BAND)
     left_out = len(table) - len(shown)
     if left_out:
-        ax.text(0.01, 0.01, f"{left_out} {plural(left_out, 'run')} without a radius or start time not shown", transform=ax.transAxes,
-                fontsize=8, gid="left-out")
+        ax.text(0.01, 0.01, f"{left_out} {plural(left_out, 'run')} without a radius or start time not shown",
+                transform=ax.transAxes, fontsize=8, gid="left-out")
     ax.set_xlabel("start of run (UTC)")
     ax.set_ylabel(f"radius of curvature ({unit})")
     ax.set_title("\n".join(t.sentence for t in trends or []) or "radius across sessions", loc="left", fontsize=10)
