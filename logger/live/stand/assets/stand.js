@@ -39,7 +39,8 @@ function showResult(s, unit) {
   setText("togo-caption", target == null ? "radius still to go (no target)"
     : (past ? "radius past the target of " : "radius still to go to ") + length(target, unit, 1) + " " + unit);
   setText("togo-sagitta-caption", past ? "sagitta past the target" : "sagitta still to go");
-  setText("togo-depth-caption", past ? "depth ground past the target at the centre" : "depth still to grind at the centre");
+  setText("togo-depth-caption",
+    past ? "depth ground past the target at the centre" : "depth still to grind at the centre");
   setText("togo-radius", away(s.radius_to_go_mm, 1));
   setText("togo-sagitta", away(s.sagitta_to_go_mm, 4));
   setText("togo-depth", s.depth_to_go_mm == null ? "\u2013" : length(Math.abs(s.depth_to_go_mm), unit, 4)
