@@ -216,19 +216,28 @@ def test_overflowing_numbers_are_a_one_line_error():
     assert r.exit_code == 2 and "out of range" in r.stderr and "Traceback" not in r.stderr
 
 
+def sag(radius_mm: float, h_mm: float) -> float:
+    """The textbook sphere relation: the depth of a sphere of radius R over a half-width h."""
+    return radius_mm - math.sqrt(radius_mm * radius_mm - h_mm * h_mm)
+
+
+def replayed_with_a_target(tmp_path, target_mm: float):
+    """The sample mirror (invented, 150 mm across) replayed with a target radius: the output and summary.json."""
+    out = tmp_path / "run"
+    r = CliRunner().invoke(main, ["replay", str(SAMPLE_STREAMS / "mirror-150-f8-rough.rec"), "--profile",
+                                  str(EXAMPLE_PROFILE), "--out", str(out), "--target-radius", str(target_mm),
+                                  "--diameter", "150"])
+    assert r.exit_code == 0, r.output
+    return r, json.loads((out / "summary.json").read_text())
+
+
 def test_the_end_lines_give_the_depth_still_to_grind_in_the_panels_words(tmp_path):
     """The sample mirror (invented data) replayed with a target: the end lines carry the depth still to
     grind at the centre, sag(R_target, D/2) - sag(R, D/2) with sag(R, h) = R - sqrt(R^2 - h^2) (textbook
     sphere relation), its U from d sag / dR = 1 - R / sqrt(R^2 - h^2) times the radius's U (GUM 5.1.3)."""
-    out = tmp_path / "run"
-    r = CliRunner().invoke(main, ["replay", str(SAMPLE_STREAMS / "mirror-150-f8-rough.rec"), "--profile",
-                                  str(EXAMPLE_PROFILE), "--out", str(out), "--target-radius", "2350",
-                                  "--diameter", "150"])
-    assert r.exit_code == 0, r.output
-    s = json.loads((out / "summary.json").read_text())
+    r, s = replayed_with_a_target(tmp_path, 2350)
     R, U, h = s["radius_mm"], s["radius_U_mm"], 75.0
-    sag = lambda radius: radius - math.sqrt(radius * radius - h * h)  # noqa: E731
-    depth, depth_U = sag(2350.0) - sag(R), abs(1 - R / math.sqrt(R * R - h * h)) * U
+    depth, depth_U = sag(2350.0, h) - sag(R, h), abs(1 - R / math.sqrt(R * R - h * h)) * U
     (line,) = [x for x in r.output.splitlines() if x.startswith("depth still to grind")]
     assert line == f"depth still to grind: {depth:.4f} mm +- {depth_U:.4f} mm at the centre (sphere)"
     assert depth > 0.01  # a shorter target: glass still to come out
@@ -238,17 +247,10 @@ def test_a_target_already_passed_is_said_so_with_the_distances_unsigned(tmp_path
     """The sample mirror (invented data, R about 2403 mm) against a 2450 mm target it has already passed:
     the radius, the sagitta and the depth all say so (the same sphere relations as above, their signs
     agreeing), and the end lines give the distances without a minus sign."""
-    out = tmp_path / "run"
-    r = CliRunner().invoke(main, ["replay", str(SAMPLE_STREAMS / "mirror-150-f8-rough.rec"), "--profile",
-                                  str(EXAMPLE_PROFILE), "--out", str(out), "--target-radius", "2450",
-                                  "--diameter", "150"])
-    assert r.exit_code == 0, r.output
-    s = json.loads((out / "summary.json").read_text())
-    h = 75.0
-    sag = lambda radius: radius - math.sqrt(radius * radius - h * h)  # noqa: E731
+    r, s = replayed_with_a_target(tmp_path, 2450)
     assert s["radius_to_go_mm"] == s["radius_mm"] - 2450.0 < 0
     assert s["sagitta_to_go_mm"] < 0 and s["depth_to_go_mm"] < 0
-    assert math.isclose(s["depth_to_go_mm"], sag(2450.0) - sag(s["radius_mm"]), rel_tol=1e-9)
+    assert math.isclose(s["depth_to_go_mm"], sag(2450.0, 75.0) - sag(s["radius_mm"], 75.0), rel_tol=1e-9)
     lines = r.output.splitlines()
     (target,) = [x for x in lines if x.startswith("target radius")]
     assert target.startswith(f"target radius 2450.0 mm: radius past the target by {-s['radius_to_go_mm']:.1f} mm")
