@@ -12,7 +12,7 @@ import tempfile
 import time
 from pathlib import Path
 
-from . import budget_study, capture_bench, grit_study, replay_bench, runs_bench, stand_bench
+from . import analysis_bench, budget_study, capture_bench, grit_study, replay_bench, runs_bench, stand_bench
 
 HERE = Path(__file__).resolve().parent
 
@@ -22,8 +22,8 @@ def main() -> int:
     figures: list[dict] = []
     with tempfile.TemporaryDirectory(prefix="saglog-bench-") as tmp:
         tmp = Path(tmp)
-        for bench in (replay_bench.run, runs_bench.run, capture_bench.run, stand_bench.run, budget_study.run,
-                      grit_study.run):
+        for bench in (replay_bench.run, runs_bench.run, analysis_bench.run, capture_bench.run, stand_bench.run,
+                      budget_study.run, grit_study.run):
             for fig in bench(tmp):
                 figures.append(fig)
                 print(f"  {fig['name']}: {fig['text']}   (goal: {fig['goal']})", flush=True)
